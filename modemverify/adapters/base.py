@@ -1,0 +1,200 @@
+"""The device protocol every adapter implements, and the guard the harness calls it through.
+
+An adapter wraps one device under test. It offers any of three calls:
+
+``modulate(bits) -> samples``
+    bits: 1-D uint8 array of 0/1, a whole number of labels; samples: 1-D complex,
+    ``samples_per_symbol`` samples per label.
+``demodulate(samples) -> bits``
+    hard decisions, one 0/1 per label bit.
+``demodulate_soft(samples, noise_var) -> llrs``
+    one float per label bit; ``noise_var`` is the complex noise variance N0 per symbol.
+
+Adapters know nothing of oracles. The harness never calls an adapter directly: it calls a
+:class:`GuardedDevice`, which turns whatever the device does wrong (raises, returns the wrong
+type, shape or length, NaN) into an :class:`~modemverify.errors.AdapterError` that names the call
+and the input, so an oracle can report it as a verdict and the run goes on.
+"""
+
+from __future__ import annotations
+
+import time
+from abc import ABC, abstractmethod
+from typing import TYPE_CHECKING, ClassVar
+
+import numpy as np
+
+from ..errors import AdapterError, DeviceOutputError
+
+if TYPE_CHECKING:
+    from ..config import DeviceSpec
+
+CAPABILITIES = ("modulate", "demodulate", "demodulate_soft")
+
+
+class ModemAdapter(ABC):
+    """Base class of adapters. Subclasses set ``adapter_id`` and implement :meth:`from_spec`.
+
+    ``config_keys`` maps the extra top-level device-file keys the adapter reads to a short
+    description; the device-file loader accepts exactly those beside the common keys.
+    """
+
+    adapter_id: ClassVar[str]
+    config_keys: ClassVar[dict[str, str]] = {}
+
+    #: the calls this device offers, a subset of :data:`CAPABILITIES`
+    capabilities: frozenset[str] = frozenset()
+
+    @classmethod
+    def validate_spec(cls, spec: "DeviceSpec") -> None:
+        """Check the adapter's own keys when the device file is loaded (raise ConfigError)."""
+
+    @classmethod
+    @abstractmethod
+    def from_spec(cls, spec: "DeviceSpec") -> "ModemAdapter":
+        """Open the device described by a validated device file."""
+
+    def modulate(self, bits: np.ndarray) -> np.ndarray:
+        raise NotImplementedError
+
+    def demodulate(self, samples: np.ndarray) -> np.ndarray:
+        raise NotImplementedError
+
+    def demodulate_soft(self, samples: np.ndarray, noise_var: float) -> np.ndarray:
+        raise NotImplementedError
+
+    def close(self) -> None:
+        """Release the device (processes, libraries). Called once at the end of a run."""
+
+
+def summarise_bits(bits: np.ndarray, limit: int = 24) -> str:
+    s = "".join("1" if b else "0" for b in np.asarray(bits[:limit]).tolist())
+    return f"bits[{len(bits)}]={s}{'...' if len(bits) > limit else ''}"
+
+
+def summarise_samples(samples: np.ndarray, limit: int = 2) -> str:
+    head = ", ".join(f"{complex(x):.3g}" for x in np.asarray(samples[:limit]))
+    return f"samples[{len(samples)}]=[{head}{', ...' if len(samples) > limit else ''}]"
+
+
+def _as_1d(out, call: str, summary: str) -> np.ndarray:
+    try:
+        arr = np.asarray(out)
+    except Exception as exc:  # a device returning an unconvertible object
+        raise DeviceOutputError(f"returned {type(out).__name__}, not an array ({exc})",
+                                call=call, input_summary=summary) from None
+    if arr.ndim != 1:
+        raise DeviceOutputError(f"returned an array of shape {arr.shape}; expected 1-D",
+                                call=call, input_summary=summary)
+    return arr
+
+
+class GuardedDevice:
+    """Calls a device through checks; counts the time spent inside the device.
+
+    Parameters
+    ----------
+    adapter : ModemAdapter
+    bits_per_symbol, samples_per_symbol : int
+    name : str
+        Device name, for messages.
+    """
+
+    def __init__(self, adapter: ModemAdapter, bits_per_symbol: int, samples_per_symbol: int = 1,
+                 name: str = "device"):
+        self.adapter = adapter
+        self.k = int(bits_per_symbol)
+        self.sps = int(samples_per_symbol)
+        self.name = name
+        self.capabilities = frozenset(adapter.capabilities)
+        self.device_time_s = 0.0
+        self.calls = 0
+
+    def has(self, capability: str) -> bool:
+        return capability in self.capabilities
+
+    def _call(self, call: str, summary: str, fn, *args):
+        __tracebackhide__ = True
+        t0 = time.perf_counter()
+        try:
+            return fn(*args)
+        except AdapterError:
+            raise
+        except Exception as exc:
+            raise AdapterError(f"raised {type(exc).__name__}: {exc}", call=call,
+                               input_summary=summary) from exc
+        finally:
+            self.device_time_s += time.perf_counter() - t0
+            self.calls += 1
+
+    def modulate(self, bits: np.ndarray, *, check_length: bool = True,
+                 check_finite: bool = True) -> np.ndarray:
+        """Call ``modulate``; return complex128 samples or raise AdapterError."""
+        bits = np.ascontiguousarray(bits, dtype=np.uint8)
+        summary = summarise_bits(bits)
+        out = _as_1d(self._call("modulate", summary, self.adapter.modulate, bits.copy()),
+                     "modulate", summary)
+        if out.dtype.kind not in "biufc":
+            raise DeviceOutputError(f"returned dtype {out.dtype}; expected complex samples",
+                                    call="modulate", input_summary=summary)
+        out = out.astype(np.complex128, copy=False)
+        if check_length:
+            expected = (bits.size // self.k) * self.sps
+            if out.size != expected:
+                raise DeviceOutputError(
+                    f"returned {out.size} samples; expected {expected} "
+                    f"({bits.size // self.k} symbols x {self.sps} samples per symbol)",
+                    call="modulate", input_summary=summary)
+        if check_finite and not np.all(np.isfinite(out)):
+            bad = int(np.argmin(np.isfinite(out)))
+            raise DeviceOutputError(f"returned a non-finite sample ({out[bad]}) at index {bad}",
+                                    call="modulate", input_summary=summary)
+        return out
+
+    def demodulate(self, samples: np.ndarray, *, n_bits: int | None = None,
+                   check_length: bool = True) -> np.ndarray:
+        """Call ``demodulate``; return uint8 bits or raise AdapterError."""
+        samples = np.ascontiguousarray(samples, dtype=np.complex128)
+        summary = summarise_samples(samples)
+        out = _as_1d(self._call("demodulate", summary, self.adapter.demodulate, samples.copy()),
+                     "demodulate", summary)
+        if out.dtype.kind not in "biuf":
+            raise DeviceOutputError(f"returned dtype {out.dtype}; expected bits 0/1",
+                                    call="demodulate", input_summary=summary)
+        if out.size and not np.all((out == 0) | (out == 1)):
+            bad = out[~((out == 0) | (out == 1))][0]
+            raise DeviceOutputError(f"returned the value {bad!r}; expected bits 0/1",
+                                    call="demodulate", input_summary=summary)
+        expected = n_bits if n_bits is not None else (samples.size // self.sps) * self.k
+        if check_length and out.size != expected:
+            raise DeviceOutputError(f"returned {out.size} bits; expected {expected}",
+                                    call="demodulate", input_summary=summary)
+        return out.astype(np.uint8, copy=False)
+
+    def demodulate_soft(self, samples: np.ndarray, noise_var: float, *,
+                        n_bits: int | None = None) -> np.ndarray:
+        """Call ``demodulate_soft``; return float64 LLRs or raise AdapterError."""
+        samples = np.ascontiguousarray(samples, dtype=np.complex128)
+        summary = summarise_samples(samples) + f", noise_var={noise_var:.4g}"
+        out = _as_1d(self._call("demodulate_soft", summary, self.adapter.demodulate_soft,
+                                samples.copy(), float(noise_var)),
+                     "demodulate_soft", summary)
+        if out.dtype.kind not in "iuf":
+            raise DeviceOutputError(f"returned dtype {out.dtype}; expected real LLRs",
+                                    call="demodulate_soft", input_summary=summary)
+        expected = n_bits if n_bits is not None else (samples.size // self.sps) * self.k
+        if out.size != expected:
+            raise DeviceOutputError(f"returned {out.size} LLRs; expected {expected}",
+                                    call="demodulate_soft", input_summary=summary)
+        out = out.astype(np.float64, copy=False)
+        if not np.all(np.isfinite(out)):
+            bad = int(np.argmin(np.isfinite(out)))
+            raise DeviceOutputError(f"returned a non-finite LLR ({out[bad]}) at index {bad}",
+                                    call="demodulate_soft", input_summary=summary)
+        return out
+
+    def close(self) -> None:
+        try:
+            self.adapter.close()
+        except Exception:  # closing a broken device must not lose the verdicts
+            pass

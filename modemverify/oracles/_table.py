@@ -1,0 +1,82 @@
+"""Measuring a device's label-to-point table (shared by mapping, gray, energy and identify)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..dsp.sampling import integrate_dump
+from ..schemes.geometry import minimum_distance
+from ..schemes.labels import bits_to_labels, labels_to_bits
+from ..vectors.coverage import de_bruijn_labels
+from .base import Bench
+
+
+@dataclass(frozen=True)
+class MeasuredTable:
+    """The device's table and how it was obtained.
+
+    ``points[l]`` is the device's point for label ``l`` (the mean over every occurrence in the
+    probe). ``spread[l]`` is the largest distance of one occurrence from that mean, in units of
+    the minimum distance: a memoryless mapper has spread 0; a mapper whose point depends on the
+    previous symbols (a state or buffering bug) does not. ``source`` is ``"modulate"`` or
+    ``"demodulate"`` (decisions on the reference points, when the device only demodulates).
+    """
+
+    points: np.ndarray
+    spread: np.ndarray
+    source: str
+    probe_symbols: int
+
+
+def measure_table(bench: Bench) -> MeasuredTable:
+    """Probe the device once per bench (cached); raises AdapterError if the device misbehaves."""
+    if "table" not in bench.cache:
+        if bench.device.has("modulate"):
+            bench.cache["table"] = _from_modulate(bench)
+        else:
+            bench.cache["table"] = _from_demodulate(bench)
+    return bench.cache["table"]
+
+
+def _from_modulate(bench: Bench) -> MeasuredTable:
+    k = bench.k
+    m = 1 << k
+    labels = de_bruijn_labels(k, order=2)  # every ordered pair of labels occurs
+    bits = labels_to_bits(labels, k)
+    samples = bench.device.modulate(bits)
+    sym = integrate_dump(samples, bench.sps)
+    counts = np.bincount(labels, minlength=m)
+    points = (np.bincount(labels, weights=sym.real, minlength=m)
+              + 1j * np.bincount(labels, weights=sym.imag, minlength=m)) / counts
+    dev = np.abs(sym - points[labels])
+    spread = np.zeros(m)
+    np.maximum.at(spread, labels, dev)
+    dmin = minimum_distance(points) if len(np.unique(np.round(points, 9))) == m else 0.0
+    scale = dmin if dmin > 0 else max(np.sqrt(np.mean(np.abs(points) ** 2)), 1e-300)
+    return MeasuredTable(points=points, spread=spread / scale, source="modulate",
+                         probe_symbols=int(labels.size))
+
+
+def _from_demodulate(bench: Bench) -> MeasuredTable:
+    k = bench.k
+    m = 1 << k
+    ref = bench.convention.points
+    labels = de_bruijn_labels(k, order=2)
+    samples = np.repeat(ref[labels], bench.sps)
+    bits = bench.device.demodulate(samples)
+    decided = bits_to_labels(bits, k)
+    # the device's label for each probe label, and whether it is always the same
+    first = np.full(m, -1)
+    first[labels[::-1]] = decided[::-1]
+    inconsistent = decided != first[labels]
+    spread = np.zeros(m)
+    np.maximum.at(spread, labels, inconsistent.astype(float))
+    points = np.full(m, np.nan + 1j * np.nan)
+    hits = np.bincount(first, minlength=m)
+    for probe_label in range(m):  # m <= 256: a table, not a hot path
+        if hits[first[probe_label]] == 1:
+            points[first[probe_label]] = ref[probe_label]
+    return MeasuredTable(points=points, spread=spread, source="demodulate",
+                         probe_symbols=int(labels.size))

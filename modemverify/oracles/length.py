@@ -1,0 +1,73 @@
+"""``length``: output length follows from input length, for every length tried.
+
+``modulate`` must return ``n * samples_per_symbol`` samples for ``n`` labels and ``demodulate``
+``n * bits_per_symbol`` bits for ``n`` symbols' worth of samples. Dropped or extra samples (a
+filter tail, an off-by-one in a block loop) are caught; the smallest failing length is reported.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..options import Opt
+from ..vectors.prbs import prbs
+from ..verdict import Verdict
+from .base import Oracle
+
+#: symbol counts tried: small ones, powers of two and their neighbours, odd block sizes
+DEFAULT_LENGTHS = [1, 2, 3, 4, 5, 7, 8, 9, 15, 16, 17, 31, 32, 33, 63, 64, 65, 100, 127, 128,
+                   129, 255, 256, 257, 1000, 1023, 1024, 1025, 4096]
+
+
+class LengthOracle(Oracle):
+    name = "length"
+    summary = "output length follows from input length"
+    options = {
+        "symbols": Opt("list", DEFAULT_LENGTHS, "symbol counts to try",
+                       check=lambda v: None if v and all(isinstance(x, int) and x > 0 for x in v)
+                       else "expected a list of positive whole numbers"),
+    }
+
+    def run(self, bench, opts, rng, seed):
+        lengths = sorted(set(opts["symbols"]))
+        k, sps = bench.k, bench.sps
+        source = prbs("prbs15", max(lengths) * k)
+        verdicts = []
+        for side in ("modulate", "demodulate"):
+            if not bench.device.has(side):
+                continue
+            problems = []
+            for n in lengths:
+                bits = source[:n * k]
+                if side == "modulate":
+                    got = bench.device.modulate(bits, check_length=False).size
+                    want = n * sps
+                else:
+                    samples = bench.reference.modulate(bits)
+                    got = bench.device.demodulate(samples, check_length=False).size
+                    want = n * k
+                if got != want:
+                    problems.append((n, got, want))
+            name = f"{self.name}.{side}"
+            unit = "samples" if side == "modulate" else "bits"
+            if not problems:
+                verdicts.append(Verdict(name, "pass",
+                                        f"{side} output length correct for {len(lengths)} input "
+                                        f"lengths from {lengths[0]} to {lengths[-1]} symbols",
+                                        statistic=0.0, limit=0.0, seed=seed))
+                continue
+            n, got, want = problems[0]
+            deltas = sorted({g - w for _, g, w in problems})
+            pattern = (f"always {deltas[0]:+d} {unit}" if len(deltas) == 1
+                       else f"off by {', '.join(f'{d:+d}' for d in deltas[:5])} {unit}")
+            verdicts.append(Verdict(
+                name, "fail",
+                f"{side} returned the wrong number of {unit} for {len(problems)} of "
+                f"{len(lengths)} lengths ({pattern}); first at {n} symbols: {got} instead of "
+                f"{want}", statistic=float(len(problems)), limit=0.0, unit="lengths wrong",
+                counterexample=f"{n} symbols ({n * k} bits) -> {got} {unit}, expected {want}",
+                seed=seed, details={"wrong": [list(p) for p in problems]}))
+        return verdicts
+
+
+ORACLE = LengthOracle()

@@ -1,0 +1,98 @@
+"""``mapping``: the device's label-to-point table equals the claimed convention.
+
+Equality is up to a positive real gain (the ``energy`` check judges scale). On a mismatch the
+reason names the transform that relates the two tables (arms swapped, label bits reversed,
+polarity inverted, rotation, conjugation), or lists the labels that differ. The table is probed
+with a de Bruijn sequence of labels, so a mapper whose output depends on the previous symbol is
+caught too.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..options import Opt
+from ..schemes.labels import label_string
+from ..schemes.transforms import (DEFAULT_TOLERANCE, describe_reassignment, differing_labels,
+                                  identity_assignment, relate)
+from ..verdict import Verdict
+from ._table import measure_table
+from .base import Bench, Oracle
+
+
+def _fmt_point(z: complex) -> str:
+    return f"{z.real:+.4f}{z.imag:+.4f}j"
+
+
+class MappingOracle(Oracle):
+    name = "mapping"
+    summary = "label-to-point table equals the claimed convention (up to a positive gain)"
+    options = {
+        "tolerance": Opt("number", DEFAULT_TOLERANCE,
+                         "largest deviation of a point, as a fraction of the minimum distance",
+                         minimum=0, exclusive_minimum=True),
+    }
+
+    def run(self, bench, opts, rng, seed):
+        table = measure_table(bench)
+        conv = bench.convention
+        k = bench.k
+        tol = opts["tolerance"]
+        details = {"table": {label_string(l, k): [float(p.real), float(p.imag)]
+                             for l, p in enumerate(table.points)},
+                   "probe": table.source}
+        memory = np.nonzero(table.spread > tol)[0]
+        if len(memory):
+            worst = int(memory[np.argmax(table.spread[memory])])
+            what = ("decision" if table.source == "demodulate"
+                    else f"point (spread {table.spread[worst]:.2f} minimum distances)")
+            return [Verdict(
+                self.name, "fail",
+                f"the {what} for label {label_string(worst, k)} depends on the neighbouring "
+                f"symbols ({len(memory)} of {len(table.points)} labels): the mapper has memory "
+                f"or mixes symbols", statistic=float(table.spread.max()), limit=tol,
+                counterexample=f"label {label_string(worst, k)} in a de Bruijn sequence of "
+                               f"{table.probe_symbols} labels", seed=seed, details=details)]
+        if table.source == "demodulate" and np.any(np.isnan(table.points)):
+            missing = [label_string(l, k) for l in np.nonzero(np.isnan(table.points))[0]]
+            return [Verdict(self.name, "fail",
+                            f"the demodulator never decides labels {', '.join(missing[:8])} on "
+                            f"the {conv.name} points: two points share a decision", seed=seed,
+                            details=details)]
+        gain, bad = differing_labels(conv.points, table.points, tol)
+        if not bad:
+            return [Verdict(self.name, "pass",
+                            f"all {len(table.points)} labels map to the {conv.name} "
+                            f"{conv.modulation} points (gain {gain:.4g})",
+                            statistic=0.0, limit=tol, seed=seed, details=details)]
+        rels = relate(conv.points, table.points, tol)
+        details["relation"] = [r.to_json() for r in rels]
+        l0 = bad[0]
+        ce = (f"bits={list(map(int, label_string(l0, k)))} -> "
+              f"{_fmt_point(table.points[l0])} (expected {_fmt_point(gain * conv.points[l0])})")
+        if rels and rels[0].permutation is not None and rels[0].cost > 0:
+            desc = rels[0].describe()
+            also = [r.describe() for r in rels[1:]]
+            reason = (f"device table is the {conv.name} table with {desc}"
+                      + (f" (the same as: {'; '.join(also)})" if also else ""))
+        else:
+            moved = identity_assignment(conv.points, table.points, gain, tol)
+            if moved is not None:
+                reason = (f"{len(bad)} of {len(table.points)} labels are at other {conv.name} "
+                          f"points, not explained by a bit reordering, inversion or symmetry: "
+                          f"{describe_reassignment(tuple(moved.tolist()), k)}")
+            elif rels:
+                reason = (f"{len(bad)} of {len(table.points)} labels differ from {conv.name}, "
+                          f"even after {' + '.join(rels[0].geometric_steps)}: "
+                          f"{describe_reassignment(rels[0].assignment, k)}")
+            else:
+                listed = ", ".join(label_string(l, k) for l in bad[:8])
+                reason = (f"{len(bad)} of {len(table.points)} points are not on the "
+                          f"{conv.name} constellation: labels {listed}"
+                          f"{' ...' if len(bad) > 8 else ''}")
+        details["differing_labels"] = [label_string(l, k) for l in bad]
+        return [Verdict(self.name, "fail", reason, statistic=float(len(bad)), limit=0.0,
+                        unit="labels differ", counterexample=ce, seed=seed, details=details)]
+
+
+ORACLE = MappingOracle()

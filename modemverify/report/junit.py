@@ -1,0 +1,63 @@
+"""JUnit XML for CI: one testsuite per device, one testcase per verdict.
+
+Written atomically (a temporary file renamed into place), so an interrupted run never leaves a
+half-written file where CI expects a complete one.
+"""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from pathlib import Path
+
+from junit_xml import TestCase, TestSuite, to_xml_report_string
+
+from .. import __version__
+
+
+def suite_for(result) -> TestSuite:
+    spec = result.spec
+    cases = []
+    for v in result.verdicts:
+        case = TestCase(v.name, classname=f"modemverify.{spec.name}", elapsed_sec=v.duration_s,
+                        stdout=v.render())
+        if v.outcome == "fail":
+            case.add_failure_info(message=v.reason, output=v.render())
+        elif v.outcome == "error":
+            case.add_error_info(message=v.reason, output=v.render())
+        elif v.outcome == "inconclusive":
+            if spec.fail_on_inconclusive:
+                case.add_failure_info(message="inconclusive: " + v.reason, output=v.render())
+            else:
+                case.add_skipped_info(message="inconclusive: " + v.reason, output=v.render())
+        elif v.outcome == "skipped":
+            case.add_skipped_info(message=v.reason)
+        cases.append(case)
+    props = {"modemverify.version": __version__, "seed": str(result.seed),
+             "adapter": spec.adapter, "modulation": spec.scheme.modulation,
+             "convention": spec.scheme.convention,
+             "samples_per_symbol": str(spec.scheme.samples_per_symbol)}
+    if spec.file:
+        props["device_file"] = spec.file
+    return TestSuite(spec.name, cases, properties=props)
+
+
+def junit_xml(results) -> str:
+    return to_xml_report_string([suite_for(r) for r in results], encoding="utf-8")
+
+
+def write_atomic(path: str | Path, text: str) -> None:
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as f:
+            f.write(text)
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+
+
+def write_junit(results, path: str | Path) -> None:
+    write_atomic(path, junit_xml(results))

@@ -1,0 +1,237 @@
+"""Reference constellations and labelling conventions, as data.
+
+A :class:`Convention` is a table from k-bit labels to complex points at unit average symbol
+energy, plus where it comes from. The label integer has the first bit fed to the modulator as its
+most significant bit (see :mod:`modemverify.schemes.labels`), so ``points[0b0010]`` is the point
+for the bit sequence 0, 0, 1, 0.
+
+References
+----------
+.. [3GPP] 3GPP TS 38.211, *NR; Physical channels and modulation*, clause 5.1 (5.1.2 BPSK,
+   5.1.3 QPSK, 5.1.4 16QAM, 5.1.5 64QAM, 5.1.6 256QAM); the same tables as TS 36.211 clause 7.1.
+.. [80211] IEEE Std 802.11-2007, 17.3.5.7 (OFDM PHY data modulation and mapping), Tables 17-6
+   (K_MOD) to 17-10; the same content as IEEE 802.11a-1999 Tables 81 to 85. 256-QAM follows the
+   same rule with K_MOD = 1/sqrt(170) in the VHT PHY of IEEE 802.11ac (from memory).
+.. [DVBS2] ETSI EN 302 307-1, 5.4.1 (QPSK, Figure 9) and 5.4.2 (8PSK, Figure 10), rho^2 = 1.
+.. [GRAY] "gray" and "natural" are generic labellings (common practice): PSK point m sits at
+   angle 2*pi*m/M (+45 degrees for QPSK) and carries label gray(m) or m; square QAM takes the first
+   half of the label bits for I and the second half for Q, each a PAM axis whose levels, in
+   ascending order, carry the labels gray(i) or i.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from functools import lru_cache
+
+import numpy as np
+
+from ..errors import ConfigError, UnknownNameError
+from .labels import gray_code, labels_to_bits
+
+#: modulation name -> bits per symbol
+MODULATIONS: dict[str, int] = {
+    "bpsk": 1, "qpsk": 2, "8psk": 3, "16qam": 4, "64qam": 6, "256qam": 8,
+}
+
+#: the order in which conventions are preferred when several describe a device equally well
+CONVENTION_ORDER = ("3gpp", "ieee802.11", "dvb-s2", "gray", "natural")
+
+
+@dataclass(frozen=True)
+class Convention:
+    """One published (or generic) label-to-point table at unit average energy.
+
+    Attributes
+    ----------
+    name : str
+        Convention name, e.g. ``"3gpp"``.
+    modulation : str
+        Modulation name, e.g. ``"16qam"``.
+    points : numpy.ndarray
+        complex128, ``points[label]`` is the point for that label.
+    normalisation : float
+        The factor the standard multiplies its integer grid by (1/sqrt(10) for 16QAM), kept to
+        name a missing normalisation in a failure reason.
+    is_gray : bool
+        Whether nearest neighbours differ in exactly one bit.
+    source : str
+        Document and clause the table comes from.
+    """
+
+    name: str
+    modulation: str
+    points: np.ndarray = field(repr=False)
+    normalisation: float
+    is_gray: bool
+    source: str
+
+    @property
+    def bits_per_symbol(self) -> int:
+        return MODULATIONS[self.modulation]
+
+    @property
+    def order(self) -> int:
+        return 1 << self.bits_per_symbol
+
+    def modulate(self, bits: np.ndarray) -> np.ndarray:
+        """Map bits to points (the reference modulator, one sample per symbol)."""
+        from .labels import bits_to_labels
+
+        return self.points[bits_to_labels(bits, self.bits_per_symbol)]
+
+
+def _bits_matrix(k: int) -> np.ndarray:
+    """Row ``label`` holds that label's bits, first-fed bit in column 0."""
+    return labels_to_bits(np.arange(1 << k), k).reshape(-1, k).astype(np.int64)
+
+
+def _3gpp_axis(bits: np.ndarray) -> np.ndarray:
+    """Amplitude on one axis from its bits (c0 = sign, then magnitude bits), TS 38.211 5.1.
+
+    Implements (1-2c0)[2^(m-1) - (1-2c1)[2^(m-2) - (1-2c2)[...]]] for m bits.
+    """
+    m = bits.shape[1]
+    inner = np.ones(bits.shape[0])
+    for j in range(m - 1, 0, -1):
+        inner = 2 ** (m - j) - (1 - 2 * bits[:, j]) * inner
+    return (1 - 2 * bits[:, 0]) * inner
+
+
+def _3gpp(modulation: str) -> tuple[np.ndarray, float]:
+    k = MODULATIONS[modulation]
+    b = _bits_matrix(k)
+    if modulation == "bpsk":
+        s = 1 / np.sqrt(2)
+        return s * ((1 - 2 * b[:, 0]) + 1j * (1 - 2 * b[:, 0])), s
+    i_bits, q_bits = b[:, 0::2], b[:, 1::2]
+    m = 1 << k
+    s = 1 / np.sqrt(2 * (m - 1) / 3)
+    return s * (_3gpp_axis(i_bits) + 1j * _3gpp_axis(q_bits)), s
+
+
+def _pam_levels(n_levels: int) -> np.ndarray:
+    return np.arange(-(n_levels - 1), n_levels, 2, dtype=float)
+
+
+def _axis_from_labels(axis_labels: np.ndarray, n_bits: int, gray: bool) -> np.ndarray:
+    """Level for each axis label, levels ascending carry labels gray(i) (or i)."""
+    n = 1 << n_bits
+    idx = np.arange(n)
+    lab = gray_code(idx) if gray else idx
+    level_of_label = np.empty(n)
+    level_of_label[lab] = _pam_levels(n)
+    return level_of_label[axis_labels]
+
+
+def _square_qam(modulation: str, gray: bool) -> tuple[np.ndarray, float]:
+    k = MODULATIONS[modulation]
+    half = k // 2
+    labels = np.arange(1 << k)
+    i_lab, q_lab = labels >> half, labels & ((1 << half) - 1)
+    m = 1 << k
+    s = 1 / np.sqrt(2 * (m - 1) / 3)
+    pts = _axis_from_labels(i_lab, half, gray) + 1j * _axis_from_labels(q_lab, half, gray)
+    return s * pts, s
+
+
+def _ieee80211(modulation: str) -> tuple[np.ndarray, float]:
+    if modulation == "bpsk":
+        # Table 17-7: b0 = 0 -> I = -1, b0 = 1 -> I = +1, Q = 0.
+        return np.array([-1.0 + 0j, 1.0 + 0j]), 1.0
+    if modulation == "qpsk":
+        # Table 17-8: b0 -> I, b1 -> Q, 0 -> -1, 1 -> +1; K_MOD = 1/sqrt(2).
+        s = 1 / np.sqrt(2)
+        b = _bits_matrix(2)
+        return s * ((2 * b[:, 0] - 1) + 1j * (2 * b[:, 1] - 1)), s
+    # Tables 17-9, 17-10: first half of the bits -> I, second half -> Q; ascending levels carry
+    # the binary-reflected Gray labels (00 -3, 01 -1, 11 +1, 10 +3).
+    return _square_qam(modulation, gray=True)
+
+
+def _psk(modulation: str, gray: bool) -> tuple[np.ndarray, float]:
+    k = MODULATIONS[modulation]
+    m = 1 << k
+    offset = np.pi / 4 if m == 4 else 0.0
+    idx = np.arange(m)
+    lab = gray_code(idx) if gray else idx
+    pts = np.empty(m, dtype=complex)
+    pts[lab] = np.exp(1j * (2 * np.pi * idx / m + offset))
+    return pts, 1.0
+
+
+def _dvbs2(modulation: str) -> tuple[np.ndarray, float]:
+    if modulation == "qpsk":
+        # Figure 9: 00 -> pi/4, 01 -> 7pi/4, 10 -> 3pi/4, 11 -> 5pi/4 (same as 3GPP QPSK).
+        angles = np.array([1, 7, 3, 5]) * np.pi / 4
+    else:
+        # Figure 10: 000 pi/4, 001 0, 010 pi, 011 5pi/4, 100 pi/2, 101 7pi/4, 110 3pi/4,
+        # 111 3pi/2 (leftmost label bit = first bit = MSB).
+        angles = np.array([1, 0, 4, 5, 2, 7, 3, 6]) * np.pi / 4
+    return np.exp(1j * angles), 1.0
+
+
+_BUILDERS = {
+    "3gpp": (("bpsk", "qpsk", "16qam", "64qam", "256qam"), _3gpp,
+             "3GPP TS 38.211 5.1 (TS 36.211 7.1)"),
+    "ieee802.11": (("bpsk", "qpsk", "16qam", "64qam", "256qam"), _ieee80211,
+                   "IEEE Std 802.11-2007 17.3.5.7, Tables 17-6 to 17-10"),
+    "dvb-s2": (("qpsk", "8psk"), _dvbs2, "ETSI EN 302 307-1 5.4.1-5.4.2, Figures 9-10"),
+    "gray": (tuple(MODULATIONS), None, "generic binary-reflected Gray labelling (common practice)"),
+    "natural": (tuple(MODULATIONS), None, "generic natural-binary labelling (common practice)"),
+}
+
+CONVENTIONS: tuple[str, ...] = tuple(_BUILDERS)
+
+
+def _generic(name: str, modulation: str) -> tuple[np.ndarray, float]:
+    gray = name == "gray"
+    if modulation.endswith("psk"):
+        return _psk(modulation, gray)
+    return _square_qam(modulation, gray)
+
+
+def _is_gray(points: np.ndarray) -> bool:
+    from .geometry import nearest_neighbour_pairs
+    from .labels import hamming
+
+    i, j = nearest_neighbour_pairs(points)
+    return bool(np.all(hamming(i, j) == 1))
+
+
+@lru_cache(maxsize=None)
+def get_convention(name: str, modulation: str) -> Convention:
+    """Look up the table of ``name`` for ``modulation``.
+
+    Raises
+    ------
+    UnknownNameError
+        For an unknown modulation or convention.
+    ConfigError
+        When the convention does not define that modulation (3GPP has no 8PSK).
+
+    Examples
+    --------
+    >>> c = get_convention("3gpp", "qpsk")
+    >>> [complex(round(p.real, 4), round(p.imag, 4)) for p in c.points]
+    [(0.7071+0.7071j), (0.7071-0.7071j), (-0.7071+0.7071j), (-0.7071-0.7071j)]
+    """
+    if modulation not in MODULATIONS:
+        raise UnknownNameError("modulation", modulation, MODULATIONS)
+    if name not in _BUILDERS:
+        raise UnknownNameError("convention", name, _BUILDERS)
+    mods, builder, source = _BUILDERS[name]
+    if modulation not in mods:
+        raise ConfigError(f"convention {name!r} defines no {modulation}; it defines "
+                          f"{', '.join(mods)}")
+    points, norm = builder(modulation) if builder else _generic(name, modulation)
+    points = np.asarray(points, dtype=np.complex128)
+    points.setflags(write=False)
+    return Convention(name=name, modulation=modulation, points=points, normalisation=norm,
+                      is_gray=_is_gray(points), source=source)
+
+
+def conventions_for(modulation: str) -> list[Convention]:
+    """Every convention that defines ``modulation``, in preference order."""
+    return [get_convention(n, modulation) for n in CONVENTION_ORDER
+            if modulation in _BUILDERS[n][0]]
