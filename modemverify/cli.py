@@ -86,7 +86,7 @@ def _terminate(signum, frame):  # SIGTERM behaves like Ctrl-C: finish writing wh
     raise KeyboardInterrupt
 
 
-def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=sys.stdout):
+def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=None):
     """Run the specs, print summaries, write JUnit and the report; return (results, exit code).
 
     JUnit is rewritten after every device, and on an interrupt with what finished, so CI always
@@ -96,6 +96,7 @@ def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=sy
     from .report.junit import write_junit
     from .runner import RunResult, check
 
+    stream = stream or sys.stdout
     results = []
     previous = signal.signal(signal.SIGTERM, _terminate)
     interrupted = False

@@ -14,12 +14,15 @@ from .runner import open_bench
 from .schemes.conventions import conventions_for
 from .schemes.geometry import nearest_neighbour_pairs
 from .schemes.labels import hamming, label_string
-from .schemes.transforms import DEFAULT_TOLERANCE, candidate_relations, relate
+from .schemes.transforms import DEFAULT_TOLERANCE, relate
 
 
-def identify(spec: DeviceSpec, tolerance: float = DEFAULT_TOLERANCE) -> dict:
-    """Measure and describe the device's mapping; raises AdapterError if the device fails."""
-    bench = open_bench(spec)
+def identify(spec: DeviceSpec, tolerance: float = DEFAULT_TOLERANCE, *, adapter=None) -> dict:
+    """Measure and describe the device's mapping; raises AdapterError if the device fails.
+
+    ``adapter`` is an already-open adapter to use instead of opening the spec's device.
+    """
+    bench = open_bench(spec, adapter)
     try:
         table = measure_table(bench)
     finally:

@@ -18,11 +18,12 @@ EXPECTED = {
 }
 
 
-def run_demo(out: Path, *, seed: int, stream=sys.stdout) -> int:
+def run_demo(out: Path, *, seed: int, stream=None) -> int:
     """Run the scenario; exit 0 when every device got the verdict the scenario expects."""
     from ..cli import run_and_report
     from ..config import load_device
 
+    stream = stream or sys.stdout
     print("modemverify demo: an invented scenario (modemverify/demo/SCENARIO.md): six candidate "
           "ports of a 16QAM/QPSK mapper, one correct, five with a defect each.\n", file=stream)
     specs = [load_device(HERE / name) for name in EXPECTED]
