@@ -8,7 +8,9 @@ An adapter wraps one device under test. It offers any of three calls:
 ``demodulate(samples) -> bits``
     hard decisions, one 0/1 per label bit.
 ``demodulate_soft(samples, noise_var) -> llrs``
-    one float per label bit; ``noise_var`` is the complex noise variance N0 per symbol.
+    one float per label bit, positive meaning bit 0 unless the device file sets
+    ``scheme.llr_positive_bit: 1``; ``noise_var`` is the complex noise variance per sample of
+    ``samples`` (E|w|^2; N0 at one sample per symbol).
 
 Adapters know nothing of oracles. The harness never calls an adapter directly: it calls a
 :class:`GuardedDevice`, which turns whatever the device does wrong (raises, returns the wrong
@@ -41,6 +43,11 @@ class ModemAdapter(ABC):
 
     adapter_id: ClassVar[str]
     config_keys: ClassVar[dict[str, str]] = {}
+    #: default of the device file's ``isolate`` key: run the device in a worker process
+    isolate_default: ClassVar[bool] = False
+    #: true when the adapter itself runs the device out of process and enforces ``timeout_s``
+    #: (the harness then never wraps it in a worker)
+    isolates_itself: ClassVar[bool] = False
 
     #: the calls this device offers, a subset of :data:`CAPABILITIES`
     capabilities: frozenset[str] = frozenset()
@@ -77,15 +84,31 @@ def summarise_samples(samples: np.ndarray, limit: int = 2) -> str:
     return f"samples[{len(samples)}]=[{head}{', ...' if len(samples) > limit else ''}]"
 
 
-def _as_1d(out, call: str, summary: str) -> np.ndarray:
+class _Summary:
+    """Formats an input summary only when a message needs it (the BER loop calls millions of
+    times and never fails)."""
+
+    __slots__ = ("fn", "arg", "extra")
+
+    def __init__(self, fn, arg, extra=""):
+        self.fn, self.arg, self.extra = fn, arg, extra
+
+    def __str__(self) -> str:
+        return self.fn(self.arg) + self.extra
+
+    def __format__(self, spec) -> str:
+        return format(str(self), spec)
+
+
+def _as_1d(out, call: str, summary) -> np.ndarray:
     try:
         arr = np.asarray(out)
     except Exception as exc:  # a device returning an unconvertible object
         raise DeviceOutputError(f"returned {type(out).__name__}, not an array ({exc})",
-                                call=call, input_summary=summary) from None
+                                call=call, input_summary=str(summary)) from None
     if arr.ndim != 1:
         raise DeviceOutputError(f"returned an array of shape {arr.shape}; expected 1-D",
-                                call=call, input_summary=summary)
+                                call=call, input_summary=str(summary))
     return arr
 
 
@@ -113,7 +136,7 @@ class GuardedDevice:
     def has(self, capability: str) -> bool:
         return capability in self.capabilities
 
-    def _call(self, call: str, summary: str, fn, *args):
+    def _call(self, call: str, summary, fn, *args):
         __tracebackhide__ = True
         t0 = time.perf_counter()
         try:
@@ -122,7 +145,7 @@ class GuardedDevice:
             raise
         except Exception as exc:
             raise AdapterError(f"raised {type(exc).__name__}: {exc}", call=call,
-                               input_summary=summary) from exc
+                               input_summary=str(summary)) from exc
         finally:
             self.device_time_s += time.perf_counter() - t0
             self.calls += 1
@@ -131,12 +154,12 @@ class GuardedDevice:
                  check_finite: bool = True) -> np.ndarray:
         """Call ``modulate``; return complex128 samples or raise AdapterError."""
         bits = np.ascontiguousarray(bits, dtype=np.uint8)
-        summary = summarise_bits(bits)
+        summary = _Summary(summarise_bits, bits)
         out = _as_1d(self._call("modulate", summary, self.adapter.modulate, bits.copy()),
                      "modulate", summary)
         if out.dtype.kind not in "biufc":
             raise DeviceOutputError(f"returned dtype {out.dtype}; expected complex samples",
-                                    call="modulate", input_summary=summary)
+                                    call="modulate", input_summary=str(summary))
         out = out.astype(np.complex128, copy=False)
         if check_length:
             expected = (bits.size // self.k) * self.sps
@@ -144,53 +167,60 @@ class GuardedDevice:
                 raise DeviceOutputError(
                     f"returned {out.size} samples; expected {expected} "
                     f"({bits.size // self.k} symbols x {self.sps} samples per symbol)",
-                    call="modulate", input_summary=summary)
-        if check_finite and not np.all(np.isfinite(out)):
+                    call="modulate", input_summary=str(summary))
+        # a sum is finite only if every term is (the full scan runs only to locate a problem)
+        if check_finite and not np.isfinite(np.sum(out.view(np.float64))) and \
+                not np.all(np.isfinite(out)):
             bad = int(np.argmin(np.isfinite(out)))
             raise DeviceOutputError(f"returned a non-finite sample ({out[bad]}) at index {bad}",
-                                    call="modulate", input_summary=summary)
+                                    call="modulate", input_summary=str(summary))
         return out
 
     def demodulate(self, samples: np.ndarray, *, n_bits: int | None = None,
                    check_length: bool = True) -> np.ndarray:
-        """Call ``demodulate``; return uint8 bits or raise AdapterError."""
+        """Call ``demodulate``; return uint8 bits or raise AdapterError.
+
+        The device gets ``samples`` itself, not a copy: callers pass buffers they do not read
+        again (a device that scribbles on its input harms no one).
+        """
         samples = np.ascontiguousarray(samples, dtype=np.complex128)
-        summary = summarise_samples(samples)
-        out = _as_1d(self._call("demodulate", summary, self.adapter.demodulate, samples.copy()),
+        summary = _Summary(summarise_samples, samples)
+        out = _as_1d(self._call("demodulate", summary, self.adapter.demodulate, samples),
                      "demodulate", summary)
         if out.dtype.kind not in "biuf":
             raise DeviceOutputError(f"returned dtype {out.dtype}; expected bits 0/1",
-                                    call="demodulate", input_summary=summary)
-        if out.size and not np.all((out == 0) | (out == 1)):
+                                    call="demodulate", input_summary=str(summary))
+        if out.size and (out.max() > 1 if out.dtype.kind in "bu" else
+                         not np.all((out == 0) | (out == 1))):
             bad = out[~((out == 0) | (out == 1))][0]
             raise DeviceOutputError(f"returned the value {bad!r}; expected bits 0/1",
-                                    call="demodulate", input_summary=summary)
+                                    call="demodulate", input_summary=str(summary))
         expected = n_bits if n_bits is not None else (samples.size // self.sps) * self.k
         if check_length and out.size != expected:
             raise DeviceOutputError(f"returned {out.size} bits; expected {expected}",
-                                    call="demodulate", input_summary=summary)
+                                    call="demodulate", input_summary=str(summary))
         return out.astype(np.uint8, copy=False)
 
     def demodulate_soft(self, samples: np.ndarray, noise_var: float, *,
                         n_bits: int | None = None) -> np.ndarray:
         """Call ``demodulate_soft``; return float64 LLRs or raise AdapterError."""
         samples = np.ascontiguousarray(samples, dtype=np.complex128)
-        summary = summarise_samples(samples) + f", noise_var={noise_var:.4g}"
+        summary = _Summary(summarise_samples, samples, f", noise_var={noise_var:.4g}")
         out = _as_1d(self._call("demodulate_soft", summary, self.adapter.demodulate_soft,
                                 samples.copy(), float(noise_var)),
                      "demodulate_soft", summary)
         if out.dtype.kind not in "iuf":
             raise DeviceOutputError(f"returned dtype {out.dtype}; expected real LLRs",
-                                    call="demodulate_soft", input_summary=summary)
+                                    call="demodulate_soft", input_summary=str(summary))
         expected = n_bits if n_bits is not None else (samples.size // self.sps) * self.k
         if out.size != expected:
             raise DeviceOutputError(f"returned {out.size} LLRs; expected {expected}",
-                                    call="demodulate_soft", input_summary=summary)
+                                    call="demodulate_soft", input_summary=str(summary))
         out = out.astype(np.float64, copy=False)
         if not np.all(np.isfinite(out)):
             bad = int(np.argmin(np.isfinite(out)))
             raise DeviceOutputError(f"returned a non-finite LLR ({out[bad]}) at index {bad}",
-                                    call="demodulate_soft", input_summary=summary)
+                                    call="demodulate_soft", input_summary=str(summary))
         return out
 
     def close(self) -> None:

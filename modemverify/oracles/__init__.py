@@ -12,7 +12,7 @@ from ..errors import ConfigError, UnknownNameError
 from ..options import validate_options
 from .base import Bench, Oracle
 
-_MODULES = ("finite", "length", "energy", "mapping", "gray", "roundtrip")
+_MODULES = ("finite", "length", "energy", "mapping", "gray", "roundtrip", "ber", "llr")
 
 ORACLES: dict[str, Oracle] = {}
 for _m in _MODULES:

@@ -9,7 +9,7 @@ more (which label, which length) catches it itself.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, ClassVar
+from typing import TYPE_CHECKING, Callable, ClassVar
 
 import numpy as np
 
@@ -32,6 +32,8 @@ class Bench:
     convention: Convention
     reference: ReferenceModem
     cache: dict = field(default_factory=dict)
+    #: ``progress(name, fraction, text)``: set by the command line for long runs; a no-op here
+    progress: Callable[[str, float, str], None] = field(default=lambda name, fraction, text: None)
 
     @property
     def k(self) -> int:

@@ -12,8 +12,8 @@ def render_run(result, *, verbose: bool = False) -> str:
     spec = result.spec
     lines = [f"== {spec.name}  [{spec.adapter}, {spec.scheme.describe()}]  seed {result.seed}"]
     order = {o: i for i, o in enumerate(OUTCOMES)}
-    for v in sorted(result.verdicts, key=lambda v: (order[v.outcome], v.name)) if not verbose \
-            else result.verdicts:
+    ranked = sorted(enumerate(result.verdicts), key=lambda iv: (order[iv[1].outcome], iv[0]))
+    for v in (result.verdicts if verbose else [v for _, v in ranked]):
         lines.append(f"  {TAGS[v.outcome]:<7} {v.name:<22} {v.reason}")
         if v.outcome in ("fail", "error") and v.counterexample:
             lines.append(f"          counterexample: {v.counterexample}")

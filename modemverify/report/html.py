@@ -34,7 +34,7 @@ def _slug(text: str) -> str:
 def _verdict_rows(result) -> str:
     order = {o: i for i, o in enumerate(OUTCOMES)}
     rows = []
-    for v in sorted(result.verdicts, key=lambda v: (order[v.outcome], v.name)):
+    for _, v in sorted(enumerate(result.verdicts), key=lambda iv: (order[iv[1].outcome], iv[0])):
         stat = ""
         if v.statistic is not None:
             stat = f"{v.statistic:.4g} {html.escape(v.unit)}"

@@ -63,7 +63,7 @@ def constellation_plot(result, folder: Path, stem: str) -> list[Figure]:
     ax.set_xlabel("I")
     ax.set_ylabel("Q")
     ax.set_title(f"{result.spec.name}: {mapping.outcome.upper()} mapping")
-    ax.legend(loc="upper right", fontsize=8)
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.09), ncol=2, fontsize=8)
     fig.tight_layout()
     name = f"{stem}-constellation.png"
     fig.savefig(folder / name)
@@ -74,4 +74,48 @@ def constellation_plot(result, folder: Path, stem: str) -> list[Figure]:
                    "convention.")]
 
 
-PLOTTERS = [constellation_plot]
+def waterfall_plot(result, folder: Path, stem: str) -> list[Figure]:
+    """Measured BER with interval bars over the theory curve and the margin (limit) curve."""
+    from ..schemes.theory import ber as theory_ber
+
+    pts = [v for v in result.verdicts if v.name.startswith("ber.") and "ebn0_db" in v.details]
+    if not pts:
+        return []
+    plt = _pyplot()
+    mod = result.spec.scheme.modulation
+    x = np.array([v.details["ebn0_db"] for v in pts])
+    margin = pts[0].details["margin_db"]
+    grid = np.linspace(x.min() - 2, x.max() + 1.5, 200)
+    fig, ax = plt.subplots(figsize=(7, 4.8), dpi=100)
+    ax.semilogy(grid, theory_ber(mod, grid), "k-", lw=1.2, label=f"theory ({mod}, AWGN)")
+    ax.semilogy(grid, theory_ber(mod, grid - margin), "k--", lw=0.9,
+                label=f"limit: theory {margin:g} dB worse")
+    colours = {"pass": "tab:green", "fail": "tab:red", "inconclusive": "tab:orange",
+               "error": "tab:purple"}
+    for v in pts:
+        ber = v.statistic if v.statistic and v.statistic > 0 else None
+        lo, hi = v.interval if v.interval else (np.nan, np.nan)
+        c = colours.get(v.outcome, "0.5")
+        y = ber if ber else hi
+        if y and y > 0:
+            lower = max(y - lo, 0) if ber else 0
+            ax.errorbar([v.details["ebn0_db"]], [y], yerr=[[lower], [max(hi - y, 0)]],
+                        fmt="o" if ber else "v", color=c, capsize=4, ms=6)
+            ax.annotate(v.outcome, (v.details["ebn0_db"], y), textcoords="offset points",
+                        xytext=(6, 6), fontsize=8, color=c)
+    ax.set_xlabel("Eb/N0 (dB)")
+    ax.set_ylabel("bit error rate")
+    ax.grid(True, which="both", alpha=0.3)
+    ax.set_title(f"{result.spec.name}: BER vs theory")
+    ax.legend(fontsize=8, loc="lower left")
+    fig.tight_layout()
+    name = f"{stem}-ber.png"
+    fig.savefig(folder / name)
+    plt.close(fig)
+    return [Figure("BER waterfall", name,
+                   "Measured BER (markers; bars: the confidence interval used for the decision; "
+                   "a triangle marks an upper bound where no error was seen) against the theory "
+                   "curve and the limit curve shifted by the margin.")]
+
+
+PLOTTERS = [constellation_plot, waterfall_plot]

@@ -1,0 +1,212 @@
+"""``ber``: bit error rate against theory, decided with stated statistical confidence.
+
+For each Eb/N0 point the device's BER is held against the limit ``theory(Eb/N0 - margin_db)``:
+a device whose demodulator loses more than ``margin_db`` fails, one within it passes. The
+decision is Wald's sequential probability ratio test between H0 "the device meets theory"
+(``p0 = theory(Eb/N0)``) and H1 "the device is at the limit" (``p1 = theory(Eb/N0 - margin)``),
+evaluated at the exact bit where it becomes decidable, with risks alpha = beta = 1 - confidence
+(split over the points when ``familywise``). Bits are sent in blocks until it decides or
+``max_bits`` is spent, which is reported as *inconclusive*, never as a pass.
+
+Wald's test assumes independent bit errors. A demodulator with memory (a tracking loop, an
+equaliser) makes errors in bursts, and a binomial interval or an SPRT then claims far more
+certainty than the data carry. So the per-sub-block error counts are tested for over-dispersion
+(Pearson's chi-square); when they are over-dispersed the SPRT decision is set aside and the
+decision comes from the Clopper-Pearson interval widened by the measured dispersion (the design
+effect): pass when its upper end is below the limit, fail when its lower end is above.
+
+Every verdict reports the measured BER, its interval, the bits and errors used, and the
+implementation loss in dB (the theory curve inverted at the BER and at the interval's ends).
+
+References
+----------
+A. Wald, *Sequential Analysis*, Wiley, 1947 (Wald's thresholds A = (1-beta)/alpha,
+B = beta/(1-alpha)); C. J. Clopper and E. S. Pearson, Biometrika 26(4):404-413, 1934.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ..options import Opt
+from ..schemes.theory import THEORY_MODULATIONS, ber as theory_ber, ebn0_for_ber
+from ..stats import (Sprt, block_interval, clopper_pearson, dispersion_test,
+                     implementation_loss_db)
+from ..vectors.channels import Awgn, channel_from_config
+from ..verdict import Verdict
+from .base import Bench, Oracle
+
+#: shortest sub-block (bits) of the error counts the over-dispersion test uses
+MIN_SUB_BLOCK = 8192
+#: significance level of the over-dispersion test
+DISPERSION_ALPHA = 0.01
+
+
+def _default_points(modulation: str) -> list[float]:
+    """Eb/N0 (0.1 dB grid) where theory gives a BER of 1e-2, 1e-3 and 1e-4."""
+    return [round(float(ebn0_for_ber(modulation, p)), 1) for p in (1e-2, 1e-3, 1e-4)]
+
+
+def _impairments(v):
+    try:
+        channel_from_config(v, bits_per_symbol=1)
+    except Exception as exc:  # ConfigError or UnknownNameError: report its text at load time
+        return str(exc)
+    return None
+
+
+def _increasing(v):
+    return None if all(b > a for a, b in zip(v, v[1:])) else \
+        f"values must increase; write {sorted(set(v))}"
+
+
+class BerOracle(Oracle):
+    name = "ber"
+    summary = "BER within margin_db of theory, decided sequentially with stated confidence"
+    options = {
+        "ebn0_db": Opt("numbers", None, "Eb/N0 points in dB (default: where theory BER is "
+                       "1e-2, 1e-3, 1e-4)", check=_increasing),
+        "margin_db": Opt("number", 0.5, "agreed implementation margin in dB", minimum=0,
+                         exclusive_minimum=True),
+        "confidence": Opt("number", 0.95, "1 - risk of a wrong pass or a wrong fail",
+                          minimum=0.5, maximum=0.999999),
+        "familywise": Opt("bool", True, "split the risk over the points (Bonferroni), so the "
+                          "confidence holds for the whole check"),
+        "max_bits": Opt("number", 1e7, "bit budget per point", minimum=1e3),
+        "block_bits": Opt("int", 1 << 17, "bits per device call (a multiple of 8 x bits per "
+                          "symbol is used)", minimum=64),
+        "energy": Opt("choice", "nominal", "Es from the convention's normalisation (nominal) "
+                      "or measured on the device's output (measured)",
+                      choices=("nominal", "measured")),
+        "impairments": Opt("list", [], "channel stages before the noise, e.g. "
+                           "[{kind: phase_offset, degrees: 5}]", check=_impairments),
+        "decision": Opt("choice", "sprt", "sprt (sequential) or interval (Clopper-Pearson "
+                        "bounds against the limit)", choices=("sprt", "interval")),
+    }
+
+    def applies(self, bench: Bench):
+        mod = bench.convention.modulation
+        if mod not in THEORY_MODULATIONS:
+            return f"no theory curve for {mod}"
+        if not bench.convention.is_gray:
+            return (f"the claimed convention {bench.convention.name!r} is not Gray; the theory "
+                    f"curves assume Gray labelling")
+        return None
+
+    def run(self, bench: Bench, opts, rng, seed):
+        mod = bench.convention.modulation
+        points = opts["ebn0_db"] or _default_points(mod)
+        n_points = len(points)
+        risk = 1 - opts["confidence"]
+        if opts["familywise"]:
+            risk /= n_points
+        impair = channel_from_config(opts["impairments"], bits_per_symbol=bench.k,
+                                     samples_per_symbol=bench.sps)
+        verdicts = []
+        streams = rng.spawn(n_points)
+        for ebn0, stream in zip(points, streams):
+            verdicts.append(self._point(bench, opts, stream, seed, float(ebn0), risk, impair))
+        return verdicts
+
+    def _point(self, bench, opts, rng, seed, ebn0, risk, impair) -> Verdict:
+        mod = bench.convention.modulation
+        k, sps = bench.k, bench.sps
+        name = f"{self.name}.ebn0={ebn0:g}dB"
+        p0 = float(theory_ber(mod, ebn0))
+        p1 = float(theory_ber(mod, ebn0 - opts["margin_db"]))
+        max_bits = int(opts["max_bits"])
+        if not 0 < p0 < p1 < 0.5 or p1 * max_bits < 1:
+            return Verdict(name, "skipped",
+                           f"theory BER at {ebn0:g} dB is {p0:.3g} (limit {p1:.3g}): too small to "
+                           f"measure with max_bits={max_bits:.3g}; choose a lower Eb/N0 or a "
+                           f"larger budget", statistic=None, limit=p1, seed=seed)
+        byte_sym = 8 * k  # a block is whole bytes of whole symbols
+        # sub-blocks for the over-dispersion test: long enough to expect >= 2 errors at theory
+        sub = byte_sym * max(1, -(-max(MIN_SUB_BLOCK, int(2 / p0)) // byte_sym))
+        block = max(sub, (opts["block_bits"] // sub) * sub)
+        # a symbol held for sps samples carries sps times the symbol's energy
+        awgn = Awgn(ebn0, k, sps, energy=opts["energy"], nominal_es=float(sps))
+        sprt = Sprt(p0, p1, alpha=risk, beta=risk)
+        conf = 1 - 2 * risk  # two-sided interval whose one-sided ends each carry the risk
+        mode = opts["decision"]
+        sub_counts: list[np.ndarray] = []
+        bits_sent = errors = 0
+        decided = None
+        bursty = None
+        buf = None
+        while bits_sent < max_bits and decided is None:
+            n = min(block, max_bits - bits_sent)
+            n -= n % byte_sym
+            if n <= 0:
+                break
+            bits = np.unpackbits(np.frombuffer(rng.bytes(n // 8), dtype=np.uint8))
+            tx = bench.transmit(bits)
+            if impair.stages:
+                tx = impair.apply(tx, rng)
+            if buf is None or buf.size != tx.size:
+                buf = np.empty(tx.size, dtype=np.complex128)
+            rx = bench.receive(awgn.apply(tx, rng, out=buf))
+            err = np.flatnonzero(rx != bits)
+            sub_counts.append(np.bincount(err // sub, minlength=-(-n // sub)))
+            bits_sent += n
+            errors += err.size
+            if mode == "sprt":
+                d = sprt.update(err, n)
+                if d is not None:
+                    counts = np.concatenate(sub_counts)
+                    test = dispersion_test(counts, sub) if len(counts) >= 10 else None
+                    if test is not None and test.phi > 1 and test.pvalue < DISPERSION_ALPHA:
+                        mode, bursty = "interval", test.phi
+                    else:
+                        decided = (d.outcome, d.bits_used, d.errors_used, "sprt")
+            if mode == "interval" and decided is None:
+                r = block_interval(np.concatenate(sub_counts), sub, conf)
+                if r.high < p1:
+                    decided = ("pass", bits_sent, errors, "interval")
+                elif r.low > p1:
+                    decided = ("fail", bits_sent, errors, "interval")
+            bench.progress(name, bits_sent / max_bits, f"{bits_sent:.3g} bits, {errors} errors")
+        if decided is None:
+            decided = ("inconclusive", bits_sent, errors, mode)
+        outcome, used_bits, used_errors, method = decided
+
+        # the estimate and its interval use every bit sent (the SPRT may have decided earlier)
+        counts = np.concatenate(sub_counts) if sub_counts else np.zeros(0, int)
+        ber = errors / bits_sent if bits_sent else math.nan
+        if len(counts) >= 2:
+            r = block_interval(counts, sub, conf)
+        else:
+            r = clopper_pearson(errors, bits_sent, conf)
+        interval = (float(r.low), float(r.high))
+        disp = getattr(r, "dispersion", math.nan)
+        loss = implementation_loss_db(mod, ebn0, ber, interval)
+        details = {
+            "ebn0_db": ebn0, "theory_ber": p0, "limit_ber": p1, "margin_db": opts["margin_db"],
+            "bits": bits_sent, "errors": errors, "decided_after_bits": used_bits,
+            "decided_after_errors": used_errors, "method": method, "risk": risk,
+            "loss_db": loss.loss_db, "loss_interval_db": [loss.low_db, loss.high_db],
+            "dispersion": None if math.isnan(disp) else float(disp), "sub_block_bits": sub,
+            "energy": opts["energy"], "sides": bench.sides(),
+            "impairments": impair.describe() if impair.stages else "",
+        }
+        how = ("sequential test" if method == "sprt" else "interval test")
+        head = (f"BER {ber:.3g} at {ebn0:g} dB ({errors} errors in {bits_sent:.3g} bits; "
+                f"{how} decided after {used_bits:.3g} bits); theory {p0:.3g}, limit {p1:.3g} "
+                f"(theory at {ebn0 - opts['margin_db']:g} dB); implementation loss "
+                f"{loss.describe()}")
+        extra = (f"; errors come in bursts (dispersion {bursty:.1f}), so the decision uses the "
+                 f"interval widened by it" if bursty else "")
+        if outcome == "pass":
+            reason = head + extra
+        elif outcome == "fail":
+            reason = head + f": worse than the {opts['margin_db']:g} dB margin allows" + extra
+        else:
+            reason = (head + f": budget of {max_bits:.3g} bits spent before a decision (raise "
+                      f"max_bits, or widen margin_db)" + extra)
+        return Verdict(name, outcome, reason, statistic=ber, interval=interval, confidence=conf,
+                       limit=p1, unit="BER", seed=seed, details=details)
+
+
+ORACLE = BerOracle()

@@ -1,0 +1,159 @@
+"""``llr``: soft outputs — sign convention, calibration and mutual information.
+
+The device's LLRs (``demodulate_soft``) for noisy reference-quality samples are judged three
+ways, each a verdict:
+
+``llr.sign``
+    The sign convention: with ``scheme.llr_positive_bit: 0`` (the default) a positive LLR means
+    bit 0, ``L = ln P(b=0|y) / P(b=1|y)`` (Hagenauer, Offer, Papke, IEEE Trans. Inf. Theory
+    42(2), 1996 — from memory). 3GPP specifies no LLR sign (TS 38.211 defines the transmitter
+    only — from memory), so the sign is a property of each device and must be declared.
+``llr.calibration``
+    Whether the magnitudes mean what they say: the best-fit scale ``s`` that makes
+    ``P(b|L) = 1 / (1 + exp(-s L (1 - 2b)))`` most likely for the bits sent (a one-parameter
+    logistic calibration, common practice). A calibrated demapper has ``s = 1``; over-confident
+    LLRs give ``s < 1``, under-confident ``s > 1``.
+``llr.mutual_information``
+    Bitwise mutual information ``I = 1 - E[log2(1 + exp(-(1-2b) L))]`` (the standard estimate
+    from LLRs of a consistent demapper, e.g. as used for BICM capacity — from memory), against
+    the exact reference demapper at the same Eb/N0.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from scipy import optimize, special
+
+from ..options import Opt
+from ..vectors.channels import Awgn
+from ..verdict import Verdict
+from .base import Bench, Oracle
+
+
+def _nll(scale: float, llr: np.ndarray, sign: np.ndarray) -> float:
+    """Mean negative log-likelihood (nats) of the bits under LLRs scaled by ``scale``."""
+    return float(np.mean(np.logaddexp(0.0, -scale * sign * llr)))
+
+
+def mutual_information(llr: np.ndarray, bits: np.ndarray) -> float:
+    """Bitwise mutual information estimate, in bits, from LLRs (positive meaning bit 0)."""
+    sign = 1.0 - 2.0 * bits
+    return float(1.0 - np.mean(np.logaddexp(0.0, -sign * llr)) / math.log(2))
+
+
+def best_scale(llr: np.ndarray, bits: np.ndarray) -> tuple[float, float]:
+    """Maximum-likelihood calibration scale and its standard error (Fisher information)."""
+    sign = 1.0 - 2.0 * bits
+    res = optimize.minimize_scalar(_nll, bounds=(1e-3, 1e3), args=(llr, sign),
+                                   method="bounded", options={"xatol": 1e-6})
+    s = float(res.x)
+    p = special.expit(s * sign * llr)
+    info = float(np.sum(llr ** 2 * p * (1 - p)))
+    return s, (1 / math.sqrt(info) if info > 0 else math.inf)
+
+
+class LlrOracle(Oracle):
+    name = "llr"
+    summary = "soft outputs: sign convention, calibration, mutual information vs the reference"
+    options = {
+        "ebn0_db": Opt("number", None, "Eb/N0 of the test (default: where the reference BER "
+                       "is about 1e-2)"),
+        "bits": Opt("int", 200_000, "bits sent", minimum=1000),
+        "scale_tolerance": Opt("number", 0.2, "allowed |s - 1| of the calibration scale",
+                               minimum=0, exclusive_minimum=True),
+        "mi_tolerance": Opt("number", 0.01, "allowed mutual-information shortfall, in bits per "
+                            "bit", minimum=0),
+    }
+
+    def applies(self, bench: Bench):
+        return None if bench.device.has("demodulate_soft") else "the device has no demodulate_soft"
+
+    def run(self, bench: Bench, opts, rng, seed):
+        from ..schemes.theory import THEORY_MODULATIONS, ebn0_for_ber
+
+        k, sps = bench.k, bench.sps
+        mod = bench.convention.modulation
+        ebn0 = opts["ebn0_db"]
+        if ebn0 is None:
+            ebn0 = (round(float(ebn0_for_ber(mod, 1e-2)), 1) if mod in THEORY_MODULATIONS
+                    else 10.0)
+        n = opts["bits"] - opts["bits"] % (8 * k)
+        bits = np.unpackbits(np.frombuffer(rng.bytes(n // 8), dtype=np.uint8))
+        tx = bench.transmit(bits)
+        awgn = Awgn(ebn0, k, sps, nominal_es=float(sps))
+        rx = awgn.apply(tx, rng)
+        nv = awgn.noise_variance()
+        llr = bench.device.demodulate_soft(rx, nv)
+        if bench.spec.scheme.llr_positive_bit == 1:
+            llr = -llr  # judge everything in the positive-means-0 convention
+        ref = bench.reference.demodulate_soft(rx, nv)
+        where = f"at Eb/N0 {ebn0:g} dB over {n} bits"
+        out = []
+
+        # sign: agreement with the exact reference LLR where the reference is confident
+        confident = np.abs(ref) > 1.0
+        agree = float(np.mean(np.sign(llr[confident]) == np.sign(ref[confident]))) \
+            if confident.any() else math.nan
+        declared = bench.spec.scheme.llr_positive_bit
+        if agree >= 0.9:
+            out.append(Verdict("llr.sign", "pass",
+                               f"positive LLR means bit {declared}, as declared: signs agree with "
+                               f"the reference demapper on {agree:.1%} of confident bits {where}",
+                               statistic=agree, limit=0.9, unit="agreement", seed=seed))
+        elif agree <= 0.1:
+            out.append(Verdict("llr.sign", "fail",
+                               f"LLR sign is flipped: a positive LLR means bit {1 - declared}, "
+                               f"but the device file declares {declared} (signs disagree with "
+                               f"the reference on {1 - agree:.1%} of confident bits {where}); "
+                               f"fix the device or set scheme.llr_positive_bit: {1 - declared}",
+                               statistic=agree, limit=0.9, unit="agreement", seed=seed))
+            return out  # calibration and MI are meaningless with the wrong sign
+        else:
+            out.append(Verdict("llr.sign", "fail",
+                               f"LLR signs agree with the reference on only {agree:.1%} of "
+                               f"confident bits {where}: some label bits are flipped or "
+                               f"reordered", statistic=agree, limit=0.9, unit="agreement",
+                               seed=seed, details={"per_bit_agreement": [
+                                   float(np.mean(np.sign(llr.reshape(-1, k)[:, i]) ==
+                                                 np.sign(ref.reshape(-1, k)[:, i])))
+                                   for i in range(k)]}))
+            return out
+
+        s, se = best_scale(llr, bits)
+        s_ref, _ = best_scale(ref, bits)
+        tol = opts["scale_tolerance"]
+        z = 1.96
+        interval = (s - z * se, s + z * se)
+        details = {"scale": s, "scale_se": se, "reference_scale": s_ref, "ebn0_db": ebn0}
+        if abs(s - 1) <= tol:
+            out.append(Verdict("llr.calibration", "pass",
+                               f"best-fit LLR scale {s:.3f} (reference demapper {s_ref:.3f}) "
+                               f"{where}: within {tol:g} of 1", statistic=s, interval=interval,
+                               confidence=0.95, limit=tol, unit="scale", seed=seed,
+                               details=details))
+        else:
+            what = "over-confident" if s < 1 else "under-confident"
+            out.append(Verdict("llr.calibration", "fail",
+                               f"LLRs are {what}: the best-fit scale is {s:.3f} (multiply the "
+                               f"device's LLRs by it to calibrate; the reference demapper gives "
+                               f"{s_ref:.3f}) {where}; allowed {1 - tol:g} to {1 + tol:g}",
+                               statistic=s, interval=interval, confidence=0.95, limit=tol,
+                               unit="scale", seed=seed, details=details))
+
+        mi = mutual_information(llr, bits)
+        mi_ref = mutual_information(ref, bits)
+        short = mi_ref - mi
+        mtol = opts["mi_tolerance"]
+        mdetails = {"mi": mi, "mi_reference": mi_ref, "ebn0_db": ebn0}
+        outcome = "pass" if short <= mtol else "fail"
+        out.append(Verdict("llr.mutual_information", outcome,
+                           f"bitwise mutual information {mi:.4f} vs {mi_ref:.4f} for the exact "
+                           f"reference demapper {where} (shortfall {short:+.4f}, allowed "
+                           f"{mtol:g})", statistic=mi, limit=mi_ref - mtol, unit="bit/bit",
+                           seed=seed, details=mdetails))
+        return out
+
+
+ORACLE = LlrOracle()

@@ -1,0 +1,135 @@
+"""The BER check: correct devices pass, lossy ones fail, budgets end inconclusive, seeds repeat.
+
+Devices here are written independently of modemverify's reference modem: a 3GPP QPSK / 16QAM
+mapper from the TS 38.211 5.1.3 / 5.1.4 formulas and a nearest-point demodulator, with defects
+injected into the demodulator.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from modemverify.runner import check_object
+from modemverify.schemes.theory import ber as theory_ber
+
+
+class Qpsk:
+    """TS 38.211 5.1.3 QPSK with a sign slicer; ``phase_deg`` rotates the received samples
+    (a carrier-phase error in the demodulator)."""
+
+    def __init__(self, phase_deg=0.0, burst=None, seed=0):
+        self.rot = np.exp(-1j * np.radians(phase_deg))
+        self.burst = burst
+        self.rng = np.random.default_rng(seed)
+
+    def modulate(self, bits):
+        b = np.asarray(bits, dtype=float).reshape(-1, 2)
+        return ((1 - 2 * b[:, 0]) + 1j * (1 - 2 * b[:, 1])) / np.sqrt(2)
+
+    def demodulate(self, samples):
+        y = np.asarray(samples) * self.rot
+        bits = np.stack([y.real < 0, y.imag < 0], axis=1).astype(np.uint8).ravel()
+        if self.burst:
+            # a demodulator with memory: after a slip it stays wrong for a while
+            rate, length = self.burst
+            starts = np.flatnonzero(self.rng.random(bits.size // length) < rate) * length
+            for s in starts:
+                bits[s:s + length] ^= (self.rng.random(length) < 0.5).astype(np.uint8)
+        return bits
+
+
+def ber_verdicts(device, **opts):
+    res = check_object(device, modulation="qpsk", convention="3gpp",
+                       checks={"ber": opts}, seed=opts.pop("_seed", 3) if "_seed" in opts else 3)
+    return [v for v in res.verdicts if v.name.startswith("ber.")]
+
+
+def test_correct_device_passes_every_point():
+    vs = ber_verdicts(Qpsk(), ebn0_db=[2, 4, 6, 8])
+    assert [v.name for v in vs] == ["ber.ebn0=2dB", "ber.ebn0=4dB", "ber.ebn0=6dB",
+                                    "ber.ebn0=8dB"]
+    for v in vs:
+        assert v.outcome == "pass", v.reason
+        # theory for QPSK at these points: Pb = Q(sqrt(2 Eb/N0)) (Proakis & Salehi, 5th ed.,
+        # ch. 4 — section from memory); e.g. 6 dB -> 2.388e-3 (project reference sheet, [py])
+        assert v.details["theory_ber"] == pytest.approx(float(theory_ber("qpsk", v.details["ebn0_db"])))
+        assert v.interval[0] <= v.statistic <= v.interval[1]
+        assert abs(v.details["loss_db"]) < 0.5
+
+
+def test_phase_error_losing_more_than_a_db_fails():
+    # QPSK with a phase error theta: Pb = (Q(a(cos t - sin t)) + Q(a(cos t + sin t)))/2,
+    # a = sqrt(2 Eb/N0) (common practice); 15 degrees costs well over 1 dB at 1e-3.
+    vs = ber_verdicts(Qpsk(phase_deg=15), ebn0_db=[6, 8])
+    assert all(v.outcome == "fail" for v in vs), [v.reason for v in vs]
+    assert all(v.details["loss_db"] > 1.0 for v in vs)
+    assert "worse than the 0.5 dB margin" in vs[0].reason
+
+
+def test_tiny_loss_passes():
+    # 1 degree of phase error costs a few hundredths of a dB
+    vs = ber_verdicts(Qpsk(phase_deg=1), ebn0_db=[4, 6])
+    assert all(v.outcome == "pass" for v in vs), [v.reason for v in vs]
+
+
+def test_budget_spent_is_inconclusive_never_pass():
+    # a correct device, a margin far too fine to resolve with the budget: inconclusive
+    vs = ber_verdicts(Qpsk(), ebn0_db=[4], margin_db=0.05, max_bits=8192, block_bits=1024)
+    assert vs[0].outcome == "inconclusive"
+    assert "budget of 8.19e+03 bits spent" in vs[0].reason
+
+
+def test_unmeasurable_point_is_skipped():
+    # theory BER at 10 dB (3.9e-6) cannot be measured with 2048 bits: said, not guessed
+    vs = ber_verdicts(Qpsk(), ebn0_db=[10], max_bits=2048, block_bits=1024)
+    assert vs[0].outcome == "skipped" and "too small to measure" in vs[0].reason
+
+
+def test_fail_on_inconclusive_gates(tmp_path):
+    from modemverify.config import parse_device
+    from modemverify.runner import check
+    from modemverify.adapters.python import PythonAdapter
+
+    spec = parse_device({"name": "x", "adapter": "python", "target": "t:x",
+                         "fail_on_inconclusive": True,
+                         "scheme": {"modulation": "qpsk", "convention": "3gpp"},
+                         "checks": {"ber": {"ebn0_db": [4], "margin_db": 0.05,
+                                            "max_bits": 8192, "block_bits": 1024}}})
+    res = check(spec, only=["ber"], adapter=PythonAdapter(Qpsk()))
+    assert res.verdicts[0].outcome == "inconclusive" and not res.ok
+
+
+def test_same_seed_same_verdicts():
+    a = ber_verdicts(Qpsk(), ebn0_db=[4, 6])
+    b = ber_verdicts(Qpsk(), ebn0_db=[4, 6])
+    assert [v.to_json() | {"duration_s": 0} for v in a] == \
+        [v.to_json() | {"duration_s": 0} for v in b]
+
+
+def test_bursty_device_is_detected_and_the_interval_widened():
+    # errors in bursts of 64 bits: the per-sub-block counts are over-dispersed
+    vs = ber_verdicts(Qpsk(burst=(2e-3, 64)), ebn0_db=[8], max_bits=4e6)
+    v = vs[0]
+    assert v.details["dispersion"] > 3
+    assert v.details["method"] == "interval" or "bursts" in v.reason
+    naive_width = _naive_width(v)
+    assert v.interval[1] - v.interval[0] > 1.5 * naive_width
+
+
+def _naive_width(v):
+    from modemverify.stats import clopper_pearson
+
+    ci = clopper_pearson(v.details["errors"], v.details["bits"], v.confidence)
+    return ci.high - ci.low
+
+
+def test_modulate_only_device_is_judged_through_the_reference_receiver():
+    class TxOnly:
+        def modulate(self, bits):
+            return Qpsk().modulate(bits) * 0.5  # 6 dB too little power: nominal Es is 1
+
+    res = check_object(TxOnly(), modulation="qpsk", convention="3gpp",
+                       checks={"ber": {"ebn0_db": [6]}})
+    v = next(v for v in res.verdicts if v.name.startswith("ber."))
+    assert v.outcome == "fail" and "reference demodulate" in v.details["sides"]
