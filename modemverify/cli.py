@@ -55,6 +55,35 @@ def build_parser() -> argparse.ArgumentParser:
     i.add_argument("device", metavar="DEVICE.yaml")
     i.add_argument("--json", action="store_true", help="print JSON")
 
+    t = sub.add_parser("theory", help="print theory BER/SER over AWGN for a modulation")
+    t.add_argument("modulation", help="bpsk, qpsk, dbpsk, 8psk, 16qam, 64qam or 256qam")
+    t.add_argument("--ebn0", default="0:12:1", metavar="START:STOP:STEP",
+                   help="Eb/N0 range in dB, inclusive (default 0:12:1)")
+    t.add_argument("--margin", type=float, default=None, metavar="DB",
+                   help="also print the limit, theory at Eb/N0 - DB")
+    t.add_argument("--ber", type=float, action="append", metavar="P",
+                   help="also print the Eb/N0 that gives this BER (repeatable)")
+
+    v = sub.add_parser("vectors", help="golden vector files for benches that cannot run Python")
+    vsub = v.add_subparsers(dest="vectors_command", required=True, parser_class=_Parser)
+    e = vsub.add_parser("export", help="write golden vectors (bits + expected symbols) of a "
+                        "convention: a YAML header with .npy and raw little-endian payloads")
+    e.add_argument("--modulation", help="e.g. qpsk, 16qam (with --convention)")
+    e.add_argument("--convention", help="e.g. 3gpp, ieee802.11 (with --modulation)")
+    e.add_argument("--all", action="store_true",
+                   help="every set shipped in the repository's vectors/ folder")
+    e.add_argument("--samples-per-symbol", type=int, default=1, metavar="N",
+                   help="hold each point N samples (default 1: symbols)")
+    e.add_argument("--segments", metavar="NAMES",
+                   help="comma-separated: labels, de-bruijn, prbs9 (default: labels, prbs9, and "
+                        "de-bruijn up to 16 labels)")
+    e.add_argument("--sample-format", choices=("float32", "int16"), default="float32",
+                   help="of the raw sample file (default float32; int16 is Q15)")
+    e.add_argument("--full-scale", type=float, default=1.0, metavar="X",
+                   help="int16: the value of the integer 32768 (default 1.0)")
+    e.add_argument("--out", metavar="DIR", default="vectors",
+                   help="folder to write into (default ./vectors)")
+
     d = sub.add_parser("demo", help="run the bundled (invented) demo scenario end to end")
     d.add_argument("--out", metavar="DIR", default="modemverify-demo",
                    help="where the JUnit file and the report go (default ./modemverify-demo)")
@@ -69,6 +98,10 @@ def main(argv: list[str] | None = None) -> int:
             return cmd_check(args)
         if args.command == "identify":
             return cmd_identify(args)
+        if args.command == "theory":
+            return cmd_theory(args)
+        if args.command == "vectors":
+            return cmd_vectors_export(args)
         if args.command == "demo":
             from .demo import run_demo
 
@@ -94,7 +127,10 @@ def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=No
     """
     from .report.console import render_run, render_totals
     from .report.junit import write_junit
+    from .report.progress import ProgressLine
     from .runner import RunResult, check
+
+    bar = ProgressLine() if ProgressLine.wanted() else None
 
     stream = stream or sys.stdout
     results = []
@@ -103,8 +139,14 @@ def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=No
     try:
         for spec in specs:
             partial: list = []
+
+            def on_verdict(v, partial=partial):
+                if bar:
+                    bar.clear()
+                partial.append(v)
+
             try:
-                result = check(spec, seed=seed, only=only, on_verdict=partial.append)
+                result = check(spec, seed=seed, only=only, on_verdict=on_verdict, progress=bar)
             except KeyboardInterrupt:
                 interrupted = True
                 result = RunResult(spec, partial, seed)
@@ -147,6 +189,46 @@ def cmd_check(args) -> int:
     return code
 
 
+def _range(text: str) -> list[float]:
+    try:
+        parts = [float(x) for x in text.split(":")]
+    except ValueError:
+        parts = []
+    if len(parts) == 1:
+        return parts
+    if len(parts) != 3 or parts[2] <= 0 or parts[1] < parts[0]:
+        raise ConfigError(f"--ebn0={text!r}: expected START:STOP:STEP with STEP > 0, e.g. 0:12:1")
+    n = int(round((parts[1] - parts[0]) / parts[2])) + 1
+    return [round(parts[0] + i * parts[2], 10) for i in range(n)]
+
+
+def cmd_theory(args) -> int:
+    from .schemes.theory import THEORY_MODULATIONS, ber, ebn0_for_ber, ser
+    from .errors import UnknownNameError
+
+    mod = args.modulation.lower()
+    if mod not in THEORY_MODULATIONS:
+        raise UnknownNameError("modulation with a theory curve", mod, THEORY_MODULATIONS,
+                               key="modulation")
+    grid = _range(args.ebn0)
+    head = f"{'Eb/N0 dB':>8}  {'BER':>11}  {'SER':>11}"
+    if args.margin is not None:
+        head += f"  {'limit BER':>11}"
+    print(f"{mod} over AWGN, coherent detection, Gray labelling (exact; see "
+          f"modemverify.schemes.theory for the formulas and references)")
+    print(head)
+    for x in grid:
+        line = f"{x:8.2f}  {ber(mod, x):11.4e}  {ser(mod, x):11.4e}"
+        if args.margin is not None:
+            line += f"  {ber(mod, x - args.margin):11.4e}"
+        print(line)
+    for p in args.ber or []:
+        if not 0 < p < 0.5:
+            raise ConfigError(f"--ber={p!r}: expected a probability between 0 and 0.5")
+        print(f"BER {p:g} needs Eb/N0 = {ebn0_for_ber(mod, p):.3f} dB")
+    return EXIT_OK
+
+
 def cmd_identify(args) -> int:
     from .config import load_device
     from .identify import identify, render_identification
@@ -161,6 +243,39 @@ def cmd_identify(args) -> int:
         print(json.dumps(info, indent=2))
     else:
         print(render_identification(info))
+    return EXIT_OK
+
+
+def cmd_vectors_export(args) -> int:
+    from .schemes.conventions import CONVENTIONS, MODULATIONS
+    from .vectors.recording import SHIPPED_SETS, export_golden
+
+    if args.all == bool(args.modulation and args.convention) or (
+            not args.all and bool(args.modulation) != bool(args.convention)):
+        raise ConfigError("give either --all or both --modulation and --convention",
+                          key="vectors export")
+    if args.all:
+        sets = SHIPPED_SETS
+    else:
+        mod, conv = args.modulation.lower(), args.convention.lower()
+        if mod not in MODULATIONS:
+            raise ConfigError(f"--modulation={args.modulation!r}: expected one of "
+                              f"{', '.join(MODULATIONS)}")
+        if conv not in CONVENTIONS:
+            raise ConfigError(f"--convention={args.convention!r}: expected one of "
+                              f"{', '.join(CONVENTIONS)}")
+        sets = [(conv, mod)]
+    if args.samples_per_symbol < 1:
+        raise ConfigError(f"--samples-per-symbol={args.samples_per_symbol}: expected >= 1")
+    if not args.full_scale > 0:
+        raise ConfigError(f"--full-scale={args.full_scale}: expected a number > 0")
+    segments = (tuple(s.strip() for s in args.segments.split(",") if s.strip())
+                if args.segments else None)
+    paths = export_golden(args.out, sets, samples_per_symbol=args.samples_per_symbol,
+                          segments=segments, sample_format=args.sample_format,
+                          full_scale=args.full_scale)
+    for path in paths:
+        print(path)
     return EXIT_OK
 
 

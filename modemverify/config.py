@@ -27,7 +27,14 @@ COMMON_KEYS: dict[str, str] = {
     "scheme": "the modulation and convention the device claims (required)",
     "checks": "which checks, with what limits; every check that applies runs unless set to false",
     "fail_on_inconclusive": "true: an inconclusive verdict fails the run (default false)",
+    "isolate": "run the device in a worker process, so that a crash or a hang becomes an error "
+               "verdict (default: false for python and reference, true for sharedlib and process)",
+    "timeout_s": "per-call timeout in seconds for a device out of the harness's process "
+                 "(default 10)",
 }
+
+#: default of ``timeout_s``
+DEFAULT_TIMEOUT_S = 10.0
 
 SCHEME_OPTIONS: dict[str, Opt] = {
     "modulation": Opt("choice", None, "modulation", choices=tuple(MODULATIONS)),
@@ -68,6 +75,8 @@ class DeviceSpec:
     params: dict[str, Any] = field(default_factory=dict)
     checks: dict[str, Any] = field(default_factory=dict)
     fail_on_inconclusive: bool = False
+    isolate: bool = False
+    timeout_s: float = DEFAULT_TIMEOUT_S
     description: str = ""
     file: str | None = None
     base_dir: Path = field(default_factory=Path.cwd)
@@ -144,13 +153,23 @@ def parse_device(data: Any, *, file: str | None = None,
     if not isinstance(fail_inc, bool):
         raise ConfigError(f"fail_on_inconclusive={fail_inc!r}: expected true or false",
                           file=file, key="fail_on_inconclusive")
+    isolate = data.get("isolate", adapter_cls.isolate_default)
+    if not isinstance(isolate, bool):
+        raise ConfigError(f"isolate={isolate!r}: expected true or false", file=file, key="isolate")
+    timeout_s = Opt("number", DEFAULT_TIMEOUT_S, "", minimum=0, exclusive_minimum=True).validate(
+        data.get("timeout_s", DEFAULT_TIMEOUT_S), file=file, key="timeout_s")
+    if "timeout_s" in data and not (isolate or adapter_cls.isolates_itself):
+        # a call in the harness's own process cannot be interrupted safely
+        raise ConfigError(f"timeout_s={data['timeout_s']!r} needs isolate: true (a device in the "
+                          f"harness's own process cannot be stopped)", file=file, key="timeout_s")
     description = data.get("description", "")
     if not isinstance(description, str):
         raise ConfigError(f"description={description!r}: expected text", file=file,
                           key="description")
     spec = DeviceSpec(
         name=name.strip(), adapter=adapter_name, scheme=scheme, target=target, params=params,
-        checks={}, fail_on_inconclusive=fail_inc, description=description, file=file,
+        checks={}, fail_on_inconclusive=fail_inc, isolate=isolate, timeout_s=timeout_s,
+        description=description, file=file,
         base_dir=base_dir or Path.cwd(),
         extra={k: data[k] for k in adapter_cls.config_keys if k in data})
     spec.checks = validate_checks(data.get("checks"), spec, file=file)

@@ -17,7 +17,7 @@ import numpy as np
 
 from . import __version__
 from .adapters.base import GuardedDevice
-from .adapters.registry import get_adapter_class
+from .adapters.isolated import open_adapter
 from .config import DeviceSpec, load_device
 from .errors import AdapterError
 from .oracles import ORACLES, Bench
@@ -65,7 +65,8 @@ def open_bench(spec: DeviceSpec, adapter=None) -> Bench:
     Raises ConfigError or AdapterError.
     """
     if adapter is None:
-        adapter = get_adapter_class(spec.adapter).from_spec(spec)
+        # ``isolate: true`` runs the adapter in a worker process (adapters/isolated.py)
+        adapter = open_adapter(spec)
     device = GuardedDevice(adapter, spec.scheme.bits_per_symbol, spec.scheme.samples_per_symbol,
                            name=spec.name)
     conv = spec.scheme.reference
@@ -98,7 +99,8 @@ def run_oracle(oracle, bench: Bench, opts: dict, seed: int) -> list[Verdict]:
 
 
 def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
-          only: list[str] | None = None, on_verdict=None, adapter=None) -> RunResult:
+          only: list[str] | None = None, on_verdict=None, adapter=None,
+          progress=None) -> RunResult:
     """Run every check that applies to ``device`` and return the verdicts.
 
     Parameters
@@ -113,6 +115,8 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
         Called with each Verdict as soon as it exists (progress output, incremental JUnit).
     adapter : ModemAdapter, optional
         An adapter already open; by default the spec's adapter opens the device.
+    progress : callable, optional
+        ``progress(name, fraction, text)`` for long checks (the command line's progress bar).
 
     Raises
     ------
@@ -140,6 +144,8 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
 
     try:
         bench = open_bench(spec, adapter)
+        if progress is not None:
+            bench.progress = progress
     except AdapterError as exc:
         emit([Verdict("device.open", "error", f"the device could not be opened: {exc}",
                       seed=seed)])

@@ -22,6 +22,9 @@ ENTRY_POINT_GROUP = "modemverify.adapters"
 BUILTIN: dict[str, str] = {
     "python": "modemverify.adapters.python:PythonAdapter",
     "reference": "modemverify.adapters.reference:ReferenceAdapter",
+    "sharedlib": "modemverify.adapters.sharedlib:SharedLibAdapter",
+    "process": "modemverify.adapters.process:ProcessAdapter",
+    "recorded": "modemverify.adapters.recorded:RecordedAdapter",
 }
 
 

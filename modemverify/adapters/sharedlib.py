@@ -1,0 +1,201 @@
+"""``adapter: sharedlib``: a modem in a C shared library, called through this ABI.
+
+.. code-block:: c
+
+    /* returns the complex samples written, < 0 on error */
+    long modulate(const uint8_t *bits, size_t n_bits, float *iq, size_t capacity);
+    /* returns the bits written, < 0 on error */
+    long demodulate(const float *iq, size_t n_samples, uint8_t *bits, size_t capacity);
+    /* optional: returns the LLRs written, < 0 on error */
+    long demodulate_soft(const float *iq, size_t n_samples, double noise_var,
+                         float *llr, size_t capacity);
+
+``bits`` holds one bit per byte (0 or 1), in the order they are fed. ``iq`` is interleaved
+I, Q; ``capacity`` counts complex samples (modulate) or bits / LLRs (demodulate). With
+``sample_format: int16`` the ``iq`` pointers are ``int16_t *`` in Q15: value = integer *
+``full_scale`` / 32768. The capacity the harness gives is at least twice the expected count, so a
+device that writes too many samples is reported by the ``length`` check rather than overrunning
+its buffer; a device that reports more than its capacity, or writes past it (a guard zone
+after the buffer is checked), is reported as a buffer overrun.
+
+Device-file keys: ``library`` (path, relative to the device file), ``symbols`` (``{modulate:
+NAME, demodulate: NAME, demodulate_soft: NAME}``, at least one of the first two),
+``sample_format`` (``float32`` or ``int16``) and ``full_scale`` (int16 only, default 1).
+
+The library runs in a worker process by default (``isolate: true``), so a segfault is an error
+verdict; ``isolate: false`` calls it in the harness's own process (fastest, but a crash ends
+the run).
+"""
+
+from __future__ import annotations
+
+import ctypes
+import re
+
+import numpy as np
+
+from ..errors import AdapterError, ConfigError, DeviceOutputError
+from ._wire import SAMPLE_FORMATS, decode_samples, encode_samples
+from .base import ModemAdapter, summarise_bits, summarise_samples
+
+SYMBOL_KEYS = ("modulate", "demodulate", "demodulate_soft")
+_C_IDENTIFIER = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
+#: elements after each output buffer that the device must leave alone
+GUARD = 64
+_GUARD_BYTE = 0xA5
+
+
+def _options(spec):
+    """(library path, symbols, sample_format, full_scale) of a spec, validated."""
+    x = spec.extra
+    file = spec.file
+    if "library" not in x:
+        raise ConfigError("missing key 'library': the path of the shared library (relative to "
+                          "the device file)", file=file, key="library")
+    lib = x["library"]
+    if not isinstance(lib, str) or not lib:
+        raise ConfigError(f"library={lib!r}: expected a path such as build/libmodem.so",
+                          file=file, key="library")
+    path = spec.resolve(lib)
+    if not path.is_file():
+        raise ConfigError(f"library={lib!r}: no such file {path}", file=file, key="library")
+    symbols = x.get("symbols")
+    if not isinstance(symbols, dict) or not symbols:
+        raise ConfigError(f"symbols={symbols!r}: expected a mapping such as {{modulate: "
+                          f"qpsk_mod, demodulate: qpsk_demod}}", file=file, key="symbols")
+    for key, name in symbols.items():
+        if key not in SYMBOL_KEYS:
+            raise ConfigError(f"unknown function {key!r}; expected some of "
+                              f"{', '.join(SYMBOL_KEYS)}", file=file, key=f"symbols.{key}")
+        if not isinstance(name, str) or not _C_IDENTIFIER.match(name):
+            raise ConfigError(f"{key}={name!r}: expected the name of a C function",
+                              file=file, key=f"symbols.{key}")
+    if not set(symbols) & {"modulate", "demodulate"}:
+        raise ConfigError("symbols: name at least one of modulate and demodulate", file=file,
+                          key="symbols")
+    fmt = x.get("sample_format", "float32")
+    if fmt not in SAMPLE_FORMATS:
+        raise ConfigError(f"sample_format={fmt!r}: expected one of {', '.join(SAMPLE_FORMATS)}",
+                          file=file, key="sample_format")
+    full_scale = x.get("full_scale", 1.0)
+    if "full_scale" in x and fmt != "int16":
+        raise ConfigError(f"full_scale={full_scale!r} applies to sample_format: int16 only",
+                          file=file, key="full_scale")
+    if (not isinstance(full_scale, (int, float)) or isinstance(full_scale, bool)
+            or not np.isfinite(full_scale) or full_scale <= 0):
+        raise ConfigError(f"full_scale={full_scale!r}: expected a number > 0 (the value of the "
+                          f"integer 32768)", file=file, key="full_scale")
+    return path, dict(symbols), fmt, float(full_scale)
+
+
+class SharedLibAdapter(ModemAdapter):
+    """Calls a C modem through ctypes (see the module docstring for the ABI)."""
+
+    adapter_id = "sharedlib"
+    isolate_default = True
+    config_keys = {
+        "library": "path of the shared library, relative to the device file",
+        "symbols": "C function names: {modulate: NAME, demodulate: NAME, demodulate_soft: NAME}",
+        "sample_format": "float32 (default) or int16 (Q15, see full_scale)",
+        "full_scale": "int16 only: the value of the integer 32768 (default 1.0)",
+    }
+
+    def __init__(self, lib, functions: dict, bits_per_symbol: int, samples_per_symbol: int,
+                 sample_format: str = "float32", full_scale: float = 1.0, name: str = ""):
+        self.lib = lib
+        self.functions = functions
+        self.k = int(bits_per_symbol)
+        self.sps = int(samples_per_symbol)
+        self.sample_format = sample_format
+        self.full_scale = float(full_scale)
+        self.name = name
+        self.capabilities = frozenset(functions)
+        self._component = np.float32 if sample_format == "float32" else np.int16
+
+    @classmethod
+    def validate_spec(cls, spec) -> None:
+        _options(spec)
+
+    @classmethod
+    def from_spec(cls, spec) -> "SharedLibAdapter":
+        path, symbols, fmt, full_scale = _options(spec)
+        try:
+            lib = ctypes.CDLL(str(path))
+        except OSError as exc:
+            raise ConfigError(f"library={spec.extra['library']!r}: cannot be loaded ({exc})",
+                              file=spec.file, key="library") from None
+        functions = {}
+        for key, name in symbols.items():
+            try:
+                fn = getattr(lib, name)
+            except AttributeError:
+                raise ConfigError(f"{key}={name!r}: {path.name} exports no such function",
+                                  file=spec.file, key=f"symbols.{key}") from None
+            fn.restype = ctypes.c_long
+            if key == "demodulate_soft":
+                fn.argtypes = [ctypes.c_void_p, ctypes.c_size_t, ctypes.c_double,
+                               ctypes.c_void_p, ctypes.c_size_t]
+            else:
+                fn.argtypes = [ctypes.c_void_p, ctypes.c_size_t, ctypes.c_void_p,
+                               ctypes.c_size_t]
+            functions[key] = fn
+        return cls(lib, functions, spec.scheme.bits_per_symbol, spec.scheme.samples_per_symbol,
+                   fmt, full_scale, name=path.name)
+
+    # -- helpers ---------------------------------------------------------------------------
+    @staticmethod
+    def _buffer(n: int, dtype) -> np.ndarray:
+        """``n`` elements and a guard zone after them, the guard filled with a known byte."""
+        buf = np.empty(n + GUARD, dtype=dtype)
+        buf[n:].view(np.uint8)[:] = _GUARD_BYTE
+        return buf
+
+    @staticmethod
+    def _check(call: str, ret: int, capacity: int, buf: np.ndarray, used: int, unit: str,
+               describe) -> int:
+        """The count ``ret`` once checked; ``describe()`` summarises the input for an error."""
+        if ret < 0:
+            raise AdapterError(f"returned error code {ret}", call=call,
+                               input_summary=describe())
+        if ret > capacity:
+            raise DeviceOutputError(f"reported {ret} {unit} written into a buffer of {capacity}: "
+                                    f"a buffer overrun", call=call, input_summary=describe())
+        if np.any(buf[used:].view(np.uint8) != _GUARD_BYTE):
+            raise DeviceOutputError(f"wrote past the end of its output buffer (capacity "
+                                    f"{capacity} {unit}): a buffer overrun", call=call,
+                                    input_summary=describe())
+        return ret
+
+    # -- calls -----------------------------------------------------------------------------
+    def modulate(self, bits):
+        bits = np.ascontiguousarray(bits, dtype=np.uint8)
+        capacity = 2 * (bits.size // self.k) * self.sps + GUARD
+        out = self._buffer(2 * capacity, self._component)
+        ret = self.functions["modulate"](bits.ctypes.data, bits.size, out.ctypes.data, capacity)
+        n = self._check("modulate", ret, capacity, out, 2 * capacity, "samples",
+                        lambda: summarise_bits(bits))
+        return decode_samples(out[:2 * n], self.sample_format, self.full_scale)
+
+    def _iq(self, samples) -> np.ndarray:
+        return np.ascontiguousarray(encode_samples(samples, self.sample_format, self.full_scale))
+
+    def demodulate(self, samples):
+        iq = self._iq(samples)
+        n_samples = iq.size // 2
+        capacity = 2 * (n_samples // self.sps) * self.k + GUARD
+        out = self._buffer(capacity, np.uint8)
+        ret = self.functions["demodulate"](iq.ctypes.data, n_samples, out.ctypes.data, capacity)
+        n = self._check("demodulate", ret, capacity, out, capacity, "bits",
+                        lambda: summarise_samples(samples))
+        return out[:n].copy()
+
+    def demodulate_soft(self, samples, noise_var):
+        iq = self._iq(samples)
+        n_samples = iq.size // 2
+        capacity = 2 * (n_samples // self.sps) * self.k + GUARD
+        out = self._buffer(capacity, np.float32)
+        ret = self.functions["demodulate_soft"](iq.ctypes.data, n_samples, float(noise_var),
+                                                out.ctypes.data, capacity)
+        n = self._check("demodulate_soft", ret, capacity, out, capacity, "LLRs",
+                        lambda: summarise_samples(samples) + f", noise_var={noise_var:.4g}")
+        return out[:n].astype(np.float64)

@@ -1,0 +1,291 @@
+"""``adapter: process``: the example device processes, and scripted misbehaving ones.
+
+The scripted device below implements the frame protocol from its description in
+``modemverify/adapters/_wire.py`` with the standard library only (no modemverify import), as a
+third party would. Expected points: 3GPP TS 38.211 5.1.3 QPSK and 5.1.4 16QAM
+(REFERENCE-VALUES.md section 1 tables).
+"""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+import textwrap
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from modemverify.adapters.base import GuardedDevice
+from modemverify.adapters.process import ProcessAdapter
+from modemverify.config import load_device
+from modemverify.errors import AdapterError, ConfigError, DeviceCrashed, DeviceTimeout
+from modemverify.runner import check
+
+from _cmodems import CC, build_program, needs_cc, write_device
+
+EXAMPLES = Path(__file__).resolve().parents[2] / "examples"
+S = 1 / np.sqrt(2)
+QPSK_3GPP = S * np.array([1 + 1j, 1 - 1j, -1 + 1j, -1 - 1j])  # labels 00, 01, 10, 11
+FAST = {"ber": False, "llr": False}
+
+SCRIPTED = r'''
+import json, struct, sys, time
+mode = sys.argv[1]
+rd, wr = sys.stdin.buffer, sys.stdout.buffer
+if mode == "noise":
+    wr.write(b"debug: starting up\n"); wr.flush()
+if mode == "exit-at-start":
+    sys.stderr.write("scripted: license file missing\n"); sys.stderr.flush()
+    sys.exit(4)
+
+def read(n):
+    data = b""
+    while len(data) < n:
+        chunk = rd.read(n - len(data))
+        if not chunk:
+            sys.exit(0)
+        data += chunk
+    return data
+
+def frame(kind, seq, payload=b""):
+    wr.write(b"MV" + bytes([1]) + kind + struct.pack("<IQ", seq, len(payload)) + payload)
+    wr.flush()
+
+calls = 0
+while True:
+    head = read(16)
+    kind, (seq, n) = head[3:4], struct.unpack("<IQ", head[4:16])
+    payload = read(n) if n else b""
+    if kind == b"Q":
+        sys.exit(0)
+    if kind == b"H":
+        hello = {"protocol": 1, "capabilities": ["modulate"], "sample_format": "float32",
+                 "name": " ".join(sys.argv[1:])}
+        frame(b"H", seq, json.dumps(hello).encode())
+        continue
+    calls += 1
+    if mode == "hang" and len(payload) > 100:
+        sys.stderr.write("scripted: waiting for a sync word\n"); sys.stderr.flush()
+        time.sleep(3600)
+    if mode == "errors" and len(payload) > 100:
+        sys.stderr.write("scripted: pll unlocked\n"); sys.stderr.flush()
+        frame(b"E", seq, struct.pack("<i", -7) + b"symbol clock lost")
+        continue
+    if mode == "wrong-seq":
+        seq += 1
+    a = 0.7071067811865476
+    out = b"".join(struct.pack("<ff", a - 2 * a * payload[i], a - 2 * a * payload[i + 1])
+                   for i in range(0, len(payload), 2))
+    frame(b"R", seq, out)
+'''
+
+
+def scripted(tmp_path: Path, mode: str, *extra_args, **extra) -> Path:
+    (tmp_path / "scripted.py").write_text(SCRIPTED)
+    return write_device(tmp_path, f"scripted-{mode}", {
+        "adapter": "process", "command": ["{python}", "scripted.py", mode, *extra_args],
+        "scheme": {"modulation": "qpsk", "convention": "3gpp"}, **extra})
+
+
+def open_adapter(path: Path) -> ProcessAdapter:
+    return ProcessAdapter.from_spec(load_device(path))
+
+
+@pytest.fixture
+def c_device(tmp_path):
+    """The C example device, built from examples/process-device-c into tmp_path."""
+    if CC is None:
+        pytest.skip("no C compiler")
+    build_program(tmp_path, EXAMPLES / "process-device-c" / "qpsk_device.c", "qpsk-device")
+    return tmp_path
+
+
+@needs_cc
+def test_c_example_device_passes_every_verdict(c_device):
+    device = c_device / "qpsk-device.yaml"
+    device.write_text((EXAMPLES / "process-device-c" / "qpsk-device.yaml").read_text())
+    result = check(device)
+    assert result.ok, [(v.name, v.outcome, v.reason) for v in result.verdicts]
+    names = {v.name for v in result.verdicts if v.outcome == "pass"}
+    # demodulate_soft travels in S frames; the LLR checks judge it
+    assert {"mapping", "roundtrip", "length.modulate", "length.demodulate"} <= names
+    assert any(n.startswith("llr") for n in names) and any(n.startswith("ber") for n in names)
+
+
+@needs_cc
+def test_process_is_started_once_and_restarted_after_a_crash(c_device):
+    device = write_device(c_device, "crashy", {
+        "adapter": "process", "command": ["./qpsk-device", "--crash-over", "6000"],
+        "scheme": {"modulation": "qpsk", "convention": "3gpp"}})
+    adapter = open_adapter(device)
+    try:
+        guarded = GuardedDevice(adapter, 2)
+        for _ in range(3):
+            guarded.modulate(np.array([0, 1], np.uint8))
+        assert adapter.starts == 1  # one process for many calls
+        with pytest.raises(DeviceCrashed) as info:
+            guarded.modulate(np.zeros(6002, np.uint8))
+        err = info.value
+        assert "SIGABRT" in str(err) and err.call == "modulate" and "bits[6002]" in str(err)
+        assert "6002 bits is more than the frame buffer holds" in err.stderr
+        out = guarded.modulate(np.array([0, 0, 1, 1], np.uint8))
+        np.testing.assert_allclose(out, QPSK_3GPP[[0, 3]], atol=1e-7)
+        assert adapter.starts == 2
+    finally:
+        adapter.close()
+    assert adapter._child is None
+
+
+def test_python_example_device_with_a_planted_swap(tmp_path):
+    src = EXAMPLES / "process-device-python"
+    (tmp_path / "qam16_device.py").write_text((src / "qam16_device.py").read_text())
+    device = write_device(tmp_path, "swapped", {
+        "adapter": "process", "command": ["{python}", "qam16_device.py"],
+        "params": {"swap_arms": True}, "timeout_s": 30,
+        "scheme": {"modulation": "16qam", "convention": "3gpp"}, "checks": FAST})
+    result = check(device)
+    v = {x.name: x for x in result.verdicts}
+    assert v["mapping"].outcome == "fail" and "arms swapped" in v["mapping"].reason
+    assert v["roundtrip"].outcome == "pass" and v["energy"].outcome == "pass"
+
+
+def test_python_example_device_answers_with_the_ts_38_211_table():
+    spec = load_device(EXAMPLES / "process-device-python" / "qam16-device.yaml")
+    adapter = ProcessAdapter.from_spec(spec)
+    try:
+        assert adapter.hello["name"] == "qam16-device (Python example)"
+        assert adapter.capabilities == {"modulate", "demodulate", "demodulate_soft"}
+        # REFERENCE-VALUES.md: 0001 -> (1+3j)/sqrt(10), 0110 -> (3-1j)/sqrt(10)
+        out = adapter.modulate(np.array([0, 0, 0, 1, 0, 1, 1, 0], np.uint8))
+        np.testing.assert_allclose(out * np.sqrt(10), [1 + 3j, 3 - 1j], atol=1e-5)
+        assert adapter.demodulate(out).tolist() == [0, 0, 0, 1, 0, 1, 1, 0]
+    finally:
+        adapter.close()
+
+
+def test_timeout_kills_the_process_and_quotes_stderr(tmp_path):
+    adapter = open_adapter(scripted(tmp_path, "hang", timeout_s=0.5))
+    try:
+        t0 = time.monotonic()
+        with pytest.raises(DeviceTimeout) as info:
+            adapter.modulate(np.zeros(200, np.uint8))
+        assert time.monotonic() - t0 < 20  # stopped, not waited out (generous for CI)
+        assert "timeout_s=0.5" in str(info.value) and "bits[200]" in str(info.value)
+        assert "waiting for a sync word" in info.value.stderr
+        # the next call starts the process again and is answered
+        np.testing.assert_allclose(adapter.modulate(np.array([1, 1], np.uint8)), QPSK_3GPP[[3]],
+                                   atol=1e-7)
+        assert adapter.starts == 2
+    finally:
+        adapter.close()
+
+
+def test_error_frame_is_quoted_and_the_process_lives_on(tmp_path):
+    adapter = open_adapter(scripted(tmp_path, "errors"))
+    try:
+        with pytest.raises(AdapterError) as info:
+            adapter.modulate(np.zeros(200, np.uint8))
+        assert "returned error code -7: symbol clock lost" in str(info.value)
+        assert "pll unlocked" in info.value.stderr
+        adapter.modulate(np.zeros(2, np.uint8))
+        assert adapter.starts == 1
+    finally:
+        adapter.close()
+
+
+@pytest.mark.parametrize("mode, words", [
+    ("noise", "stdout carries the protocol only"),
+    ("wrong-seq", "reply numbered"),
+])
+def test_protocol_errors_are_named(tmp_path, mode, words):
+    path = scripted(tmp_path, mode)
+    if mode == "noise":  # garbage arrives before the hello: opening the device fails
+        result = check(path, only=["mapping"])
+        assert result.verdicts[0].name == "device.open"
+        assert words in result.verdicts[0].reason
+        return
+    adapter = open_adapter(path)
+    try:
+        with pytest.raises(AdapterError, match=words):
+            adapter.modulate(np.zeros(2, np.uint8))
+    finally:
+        adapter.close()
+
+
+def test_death_at_start_is_an_open_error_quoting_stderr(tmp_path):
+    result = check(scripted(tmp_path, "exit-at-start"))
+    (v,) = result.verdicts
+    assert v.name == "device.open" and v.outcome == "error"
+    assert "exited with status 4" in v.reason and "license file missing" in v.reason
+
+
+def test_arguments_reach_the_device_without_a_shell(tmp_path):
+    adapter = open_adapter(scripted(tmp_path, "echo", "; touch pwned", "$HOME", "*"))
+    try:
+        assert adapter.hello["name"] == "echo ; touch pwned $HOME *"
+    finally:
+        adapter.close()
+    assert not (tmp_path / "pwned").exists()
+
+
+@pytest.mark.parametrize("command, words", [
+    ("./dev --fast", "expected a list of arguments (the device is started without a shell)"),
+    (["./missing-device"], "no such file"),
+    (["no-such-program-anywhere"], "not found on PATH"),
+    ([], "non-empty list"),
+])
+def test_command_errors(tmp_path, command, words):
+    path = write_device(tmp_path, "bad", {"adapter": "process", "command": command,
+                                          "scheme": {"modulation": "qpsk", "convention": "3gpp"}})
+    with pytest.raises(ConfigError) as info:
+        load_device(path)
+    assert info.value.key == "command" and words in str(info.value)
+
+
+def test_isolate_false_is_refused(tmp_path):
+    path = write_device(tmp_path, "bad", {"adapter": "process", "command": ["{python}", "x.py"],
+                                          "isolate": False,
+                                          "scheme": {"modulation": "qpsk", "convention": "3gpp"}})
+    with pytest.raises(ConfigError, match="always runs the device in its own process"):
+        load_device(path)
+
+
+def test_serve_round_trip_over_pipes():
+    """The device side (serve) and the harness side agree on framing, without a child."""
+    code = textwrap.dedent("""
+        import numpy as np
+        from modemverify.adapters._wire import serve
+        class Dev:
+            def __init__(self, gain=1.0):
+                self.gain = gain
+            def modulate(self, bits):
+                print("stray print goes to stderr")
+                return self.gain * (1 - 2.0 * bits[0::2]) + 0j
+        serve(Dev, sample_format="int16", full_scale=4.0)
+    """)
+    from modemverify.adapters import _wire
+
+    proc = subprocess.Popen([sys.executable, "-c", code], stdin=subprocess.PIPE,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    try:
+        _wire.write_frame(proc.stdin, _wire.HELLO, 1, json.dumps({"params": {"gain": 2.0}})
+                          .encode())
+        _, seq, payload = _wire.read_frame(proc.stdout)
+        hello = _wire.parse_device_hello(payload)
+        assert (seq, hello["sample_format"], hello["full_scale"]) == (1, "int16", 4.0)
+        assert hello["capabilities"] == ["modulate"]
+        _wire.write_frame(proc.stdin, _wire.MODULATE, 2, np.array([0, 1, 1, 0], np.uint8))
+        kind, seq, payload = _wire.read_frame(proc.stdout)
+        assert (kind, seq) == (_wire.RESULT, 2)
+        # Q15 at full scale 4: 2.0 -> 16384
+        assert np.frombuffer(payload, "<i2").tolist() == [16384, 0, -16384, 0]
+        np.testing.assert_allclose(_wire.decode_samples(payload, "int16", 4.0), [2, -2])
+        _wire.write_frame(proc.stdin, _wire.QUIT, 3)
+        assert proc.wait(30) == 0
+        assert b"stray print goes to stderr" in proc.stderr.read()
+    finally:
+        proc.kill()
+        proc.wait()
