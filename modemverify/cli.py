@@ -55,6 +55,8 @@ def build_parser() -> argparse.ArgumentParser:
     i.add_argument("device", metavar="DEVICE.yaml")
     i.add_argument("--json", action="store_true", help="print JSON")
 
+    sub.add_parser("checks", help="list every check, its verdicts and its options")
+
     t = sub.add_parser("theory", help="print theory BER/SER over AWGN for a modulation")
     t.add_argument("modulation", help="bpsk, qpsk, dbpsk, 8psk, 16qam, 64qam or 256qam")
     t.add_argument("--ebn0", default="0:12:1", metavar="START:STOP:STEP",
@@ -98,6 +100,8 @@ def main(argv: list[str] | None = None) -> int:
             return cmd_check(args)
         if args.command == "identify":
             return cmd_identify(args)
+        if args.command == "checks":
+            return cmd_checks(args)
         if args.command == "theory":
             return cmd_theory(args)
         if args.command == "vectors":
@@ -112,6 +116,11 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("modemverify: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # output piped into head, say: not an error of ours
+        import os
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return EXIT_OK
     return EXIT_USAGE
 
 
@@ -165,7 +174,11 @@ def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=No
             from .report.html import write_report
 
             write_report(results, report)
-    print(render_totals(results), file=stream)
+    if interrupted:
+        last = results[-1]
+        print(f"INTERRUPTED in {last.spec.name} after {len(last.verdicts)} verdicts: the totals "
+              f"below cover only what finished", file=stream)
+    print(render_totals(results) + (" (incomplete)" if interrupted else ""), file=stream)
     if junit:
         print(f"JUnit: {junit}", file=stream)
     if report:
@@ -226,6 +239,19 @@ def cmd_theory(args) -> int:
         if not 0 < p < 0.5:
             raise ConfigError(f"--ber={p!r}: expected a probability between 0 and 0.5")
         print(f"BER {p:g} needs Eb/N0 = {ebn0_for_ber(mod, p):.3f} dB")
+    return EXIT_OK
+
+
+def cmd_checks(args) -> int:
+    from .oracles import ORACLES
+
+    print("Every check that applies runs; set checks.<name>: false in a device file to turn one "
+          "off, or give options:")
+    for name, oracle in ORACLES.items():
+        print(f"\n{name}: {oracle.summary}")
+        for key, opt in oracle.options.items():
+            default = "auto" if opt.default is None else opt.default
+            print(f"  {key} (default {default!r}): {opt.help}")
     return EXIT_OK
 
 

@@ -80,7 +80,7 @@ def run_oracle(oracle, bench: Bench, opts: dict, seed: int) -> list[Verdict]:
     rng = np.random.default_rng(ss)
     t0 = time.perf_counter()
     try:
-        why_not = oracle.applies(bench)
+        why_not = oracle.skip_reason(bench)
         if why_not:
             verdicts = [Verdict(oracle.name, "skipped", why_not, seed=seed)]
         else:

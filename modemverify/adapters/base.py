@@ -52,6 +52,10 @@ class ModemAdapter(ABC):
     #: the calls this device offers, a subset of :data:`CAPABILITIES`
     capabilities: frozenset[str] = frozenset()
 
+    #: True for devices that can only replay what was recorded (``recorded``): checks that
+    #: draw fresh vectors (roundtrip, ber, llr) are then skipped, with that reason
+    replays_only: ClassVar[bool] = False
+
     @classmethod
     def validate_spec(cls, spec: "DeviceSpec") -> None:
         """Check the adapter's own keys when the device file is loaded (raise ConfigError)."""
@@ -130,6 +134,7 @@ class GuardedDevice:
         self.sps = int(samples_per_symbol)
         self.name = name
         self.capabilities = frozenset(adapter.capabilities)
+        self.replays_only = bool(getattr(adapter, "replays_only", False))
         self.device_time_s = 0.0
         self.calls = 0
 

@@ -220,6 +220,7 @@ class IsolatedAdapter(ModemAdapter):
     @classmethod
     def from_spec(cls, spec) -> "IsolatedAdapter":
         adapter = cls(spec)
+        adapter.replays_only = get_adapter_class(spec.adapter).replays_only
         try:
             adapter._start()
         except BaseException:

@@ -171,6 +171,7 @@ class RecordedAdapter(ModemAdapter):
     """Replays a recording (see the module docstring)."""
 
     adapter_id = "recorded"
+    replays_only = True
     config_keys = {
         "recording": "vector-set header (.yaml) or SigMF recording, relative to the device file",
         "bits": "SigMF only: file of the bits sent (.npy, or one byte per bit), from sample 0",

@@ -71,9 +71,19 @@ class Oracle:
     #: options the device file may set under ``checks.<name>``
     options: ClassVar[dict[str, Opt]] = {}
 
+    #: True when the check draws fresh random vectors (a replay-only device cannot answer)
+    fresh_vectors: ClassVar[bool] = False
+
     def applies(self, bench: Bench) -> str | None:
         """None when the property applies to this device, else why not (a skipped verdict)."""
         return None
+
+    def skip_reason(self, bench: Bench) -> str | None:
+        """Why this check is skipped for this device, or None (the runner calls this)."""
+        if self.fresh_vectors and bench.device.replays_only:
+            return ("the device replays a recording and this check draws fresh vectors; "
+                    "record a device's answers to them, or turn the check off")
+        return self.applies(bench)
 
     def run(self, bench: Bench, opts: dict, rng: np.random.Generator, seed: int) -> list[Verdict]:
         raise NotImplementedError

@@ -64,6 +64,7 @@ def _increasing(v):
 
 class BerOracle(Oracle):
     name = "ber"
+    fresh_vectors = True
     summary = "BER within margin_db of theory, decided sequentially with stated confidence"
     options = {
         "ebn0_db": Opt("numbers", None, "Eb/N0 points in dB (default: where theory BER is "

@@ -56,6 +56,7 @@ def best_scale(llr: np.ndarray, bits: np.ndarray) -> tuple[float, float]:
 
 class LlrOracle(Oracle):
     name = "llr"
+    fresh_vectors = True
     summary = "soft outputs: sign convention, calibration, mutual information vs the reference"
     options = {
         "ebn0_db": Opt("number", None, "Eb/N0 of the test (default: where the reference BER "

@@ -32,6 +32,7 @@ def _bits_text(bits: np.ndarray, k: int) -> str:
 
 class RoundtripOracle(Oracle):
     name = "roundtrip"
+    fresh_vectors = True
     summary = "noiseless demodulate(modulate(bits)) returns the bits"
     options = {
         "max_examples": Opt("int", 200, "hypothesis examples searched", minimum=1),
