@@ -97,6 +97,10 @@ def test_measured_energy_scales_with_the_input():
     # nominal_es rescales Es the same way.
     assert Awgn(5.0, 2, nominal_es=9.0).noise_variance() == pytest.approx(
         measured.noise_variance(3 * x), rel=1e-12)
+    # Es = mean(abs(x)^2) * sps, also for a strided view and sps > 1.
+    y = np.linspace(0.1, 2.0, 999) * np.exp(1j * np.arange(999))
+    assert Awgn(5.0, 2, 3, energy="measured").symbol_energy(y[::2]) == pytest.approx(
+        3 * np.mean(np.abs(y[::2]) ** 2), rel=1e-12)
     with pytest.raises(ConfigError) as info:
         measured.noise_variance()
     assert info.value.key == "samples"
