@@ -57,6 +57,21 @@ def build_parser() -> argparse.ArgumentParser:
 
     sub.add_parser("checks", help="list every check, its verdicts and its options")
 
+    cp = sub.add_parser("compare", help="judge implementation B against implementation A on "
+                        "the same bits")
+    cp.add_argument("a", metavar="A.yaml", help="the reference implementation")
+    cp.add_argument("b", metavar="B.yaml", help="the implementation judged against A")
+    cp.add_argument("--junit", metavar="FILE")
+    cp.add_argument("--report", metavar="DIR")
+    cp.add_argument("--seed", type=_seed, default=DEFAULT_SEED)
+    cp.add_argument("--evm-limit", type=float, metavar="PERCENT",
+                    help="EVM of B against A (default: TS 38.104 Table 6.5.2.2-1 for the "
+                         "modulation)")
+    cp.add_argument("--sample-error", type=float, metavar="PERCENT",
+                    help="largest RMS per-sample error of B against A (default: the EVM limit)")
+    cp.add_argument("--spectrum-tolerance", type=float, default=1.0, metavar="DB",
+                    help="largest PSD difference in band (default 1 dB)")
+
     t = sub.add_parser("theory", help="print theory BER/SER over AWGN for a modulation")
     t.add_argument("modulation", help="bpsk, qpsk, dbpsk, 8psk, 16qam, 64qam or 256qam")
     t.add_argument("--ebn0", default="0:12:1", metavar="START:STOP:STEP",
@@ -100,6 +115,8 @@ def main(argv: list[str] | None = None) -> int:
             return cmd_check(args)
         if args.command == "identify":
             return cmd_identify(args)
+        if args.command == "compare":
+            return cmd_compare(args)
         if args.command == "checks":
             return cmd_checks(args)
         if args.command == "theory":
@@ -240,6 +257,28 @@ def cmd_theory(args) -> int:
             raise ConfigError(f"--ber={p!r}: expected a probability between 0 and 0.5")
         print(f"BER {p:g} needs Eb/N0 = {ebn0_for_ber(mod, p):.3f} dB")
     return EXIT_OK
+
+
+def cmd_compare(args) -> int:
+    from .compare import compare
+    from .config import load_device
+    from .report.console import render_run
+    from .report.junit import write_junit
+
+    a, b = load_device(args.a), load_device(args.b)
+    result = compare(a, b, seed=args.seed, evm_limit_percent=args.evm_limit,
+                     sample_error_percent=args.sample_error,
+                     spectrum_tolerance_db=args.spectrum_tolerance)
+    print(render_run(result))
+    if args.junit:
+        write_junit([result], args.junit)
+        print(f"JUnit: {args.junit}")
+    if args.report:
+        from .report.html import write_report
+
+        write_report([result], args.report, title="modemverify comparison")
+        print(f"Report: {Path(args.report) / 'index.html'}")
+    return EXIT_OK if result.ok else EXIT_FAIL
 
 
 def cmd_checks(args) -> int:

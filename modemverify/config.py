@@ -41,6 +41,27 @@ SCHEME_OPTIONS: dict[str, Opt] = {
     "convention": Opt("choice", None, "labelling the device claims", choices=CONVENTIONS),
     "samples_per_symbol": Opt("int", 1, "samples per symbol at the device's output", minimum=1),
     "llr_positive_bit": Opt("choice", 0, "the bit a positive LLR stands for", choices=(0, 1)),
+    "pulse": Opt("mapping", None, "pulse shape: {shape: rrc|rc|rectangular|gaussian, "
+                 "rolloff, span, bt} (default rectangular)"),
+    "alignment": Opt("mapping", None, "which corrections may be applied to the device's "
+                     "waveform: {delay, phase, frequency} (default: all with a pulse or more "
+                     "than one sample per symbol, none otherwise)"),
+}
+
+PULSE_OPTIONS: dict[str, Opt] = {
+    "shape": Opt("choice", "rectangular", "pulse shape",
+                 choices=("rrc", "rc", "rectangular", "gaussian")),
+    "rolloff": Opt("number", None, "roll-off factor (rrc, rc)", minimum=0, maximum=1),
+    "span": Opt("int", None, "filter span in symbols (rrc, rc, gaussian)", minimum=1),
+    "bt": Opt("number", None, "bandwidth-time product (gaussian)", minimum=0,
+              exclusive_minimum=True),
+}
+
+ALIGNMENT_OPTIONS: dict[str, Opt] = {
+    "delay": Opt("bool", True, "estimate and remove the device's delay (integer and fractional)"),
+    "phase": Opt("bool", True, "remove a constant phase rotation smaller than half the "
+                 "constellation's symmetry angle (larger ones stay: they are mapping defects)"),
+    "frequency": Opt("bool", True, "estimate and remove a small carrier frequency offset"),
 }
 
 
@@ -50,6 +71,28 @@ class SchemeSpec:
     convention: str
     samples_per_symbol: int = 1
     llr_positive_bit: int = 0
+    #: the declared pulse (rectangular by default)
+    pulse: "object" = None
+    #: samples beyond n x sps in the device's modulate output; None = any constant
+    tail_samples: int | None = 0
+    #: corrections the harness may apply: {"delay": bool, "phase": bool, "frequency": bool}
+    alignment: dict = field(default_factory=lambda: {"delay": False, "phase": False,
+                                                     "frequency": False})
+
+    def __post_init__(self):
+        if self.pulse is None:
+            from .dsp.pulses import PulseShape
+
+            self.pulse = PulseShape("rectangular", self.samples_per_symbol)
+
+    @property
+    def shaped(self) -> bool:
+        """True when the device's output is a waveform (a pulse, or several samples/symbol)."""
+        return self.samples_per_symbol > 1 or self.pulse.shape != "rectangular"
+
+    @property
+    def aligns(self) -> bool:
+        return any(self.alignment.values())
 
     @property
     def bits_per_symbol(self) -> int:
@@ -60,8 +103,14 @@ class SchemeSpec:
         return get_convention(self.convention, self.modulation)
 
     def describe(self) -> str:
+        pulse = ""
+        if self.pulse.shape != "rectangular":
+            p = self.pulse
+            extra = (f" rolloff {p.rolloff:g}" if p.rolloff is not None else
+                     f" BT {p.bt:g}" if p.bt is not None else "")
+            pulse = f", {p.shape}{extra} span {p.span}"
         return (f"{self.modulation} ({self.convention}), {self.samples_per_symbol} "
-                f"sample{'s' if self.samples_per_symbol > 1 else ''}/symbol")
+                f"sample{'s' if self.samples_per_symbol > 1 else ''}/symbol{pulse}")
 
 
 @dataclass
@@ -187,6 +236,7 @@ def _parse_scheme(raw: Any, file: str | None) -> SchemeSpec:
                               f"{', '.join(SCHEME_OPTIONS[required].choices)}",
                               file=file, key=f"scheme.{required}")
     raw = dict(raw)
+    tail = raw.pop("tail_samples", "auto")  # a number or "auto": checked below
     if isinstance(raw.get("modulation"), str):
         raw["modulation"] = raw["modulation"].lower()
     opts = validate_options(SCHEME_OPTIONS, raw, file=file, key="scheme")
@@ -195,4 +245,26 @@ def _parse_scheme(raw: Any, file: str | None) -> SchemeSpec:
     except ConfigError as exc:
         raise ConfigError(f"convention={opts['convention']!r}: {exc.raw_message}", file=file,
                           key="scheme.convention") from None
-    return SchemeSpec(**opts)
+    sps = opts["samples_per_symbol"]
+    popts = validate_options(PULSE_OPTIONS, opts["pulse"], file=file, key="scheme.pulse")
+    from .dsp.pulses import PulseShape
+
+    try:
+        pulse = PulseShape(popts["shape"], sps, rolloff=popts["rolloff"], span=popts["span"],
+                           bt=popts["bt"])
+    except ConfigError as exc:
+        raise ConfigError(exc.raw_message, file=file,
+                          key="scheme.pulse" + (f".{exc.key}" if exc.key else "")) from None
+    shaped = sps > 1 or pulse.shape != "rectangular"
+    if tail == "auto":
+        tail = None if pulse.shape != "rectangular" else 0
+    elif isinstance(tail, bool) or not isinstance(tail, int) or tail < 0:
+        raise ConfigError(f"tail_samples={tail!r}: expected a whole number >= 0 or auto",
+                          file=file, key="scheme.tail_samples")
+    defaults = {name: shaped for name in ALIGNMENT_OPTIONS}
+    given = opts["alignment"] or {}
+    align = validate_options(ALIGNMENT_OPTIONS, given, file=file, key="scheme.alignment")
+    align = {name: (align[name] if name in given else defaults[name]) for name in align}
+    return SchemeSpec(modulation=opts["modulation"], convention=opts["convention"],
+                      samples_per_symbol=sps, llr_positive_bit=opts["llr_positive_bit"],
+                      pulse=pulse, tail_samples=tail, alignment=align)

@@ -12,7 +12,7 @@ from .config import DeviceSpec
 from .oracles._table import measure_table
 from .runner import open_bench
 from .schemes.conventions import conventions_for
-from .schemes.geometry import nearest_neighbour_pairs
+from .schemes.geometry import MEASURED_RTOL, nearest_neighbour_pairs
 from .schemes.labels import hamming, label_string
 from .schemes.transforms import DEFAULT_TOLERANCE, relate
 
@@ -42,7 +42,7 @@ def identify(spec: DeviceSpec, tolerance: float = DEFAULT_TOLERANCE, *, adapter=
         "memoryless": bool(np.all(table.spread <= tolerance)),
     }
     if distinct and k > 1:
-        i, j = nearest_neighbour_pairs(pts)
+        i, j = nearest_neighbour_pairs(pts, MEASURED_RTOL)
         h = hamming(i, j)
         out["gray"] = bool(np.all(h == 1))
         out["mean_neighbour_hamming"] = float(h.mean())

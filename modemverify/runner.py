@@ -67,11 +67,13 @@ def open_bench(spec: DeviceSpec, adapter=None) -> Bench:
     if adapter is None:
         # ``isolate: true`` runs the adapter in a worker process (adapters/isolated.py)
         adapter = open_adapter(spec)
-    device = GuardedDevice(adapter, spec.scheme.bits_per_symbol, spec.scheme.samples_per_symbol,
-                           name=spec.name)
-    conv = spec.scheme.reference
+    scheme = spec.scheme
+    device = GuardedDevice(adapter, scheme.bits_per_symbol, scheme.samples_per_symbol,
+                           name=spec.name, tail_samples=scheme.tail_samples,
+                           input_tail=scheme.pulse.tail)
+    conv = scheme.reference
     return Bench(spec=spec, device=device, convention=conv,
-                 reference=ReferenceModem(conv, spec.scheme.samples_per_symbol))
+                 reference=ReferenceModem(conv, scheme.samples_per_symbol, scheme.pulse))
 
 
 def run_oracle(oracle, bench: Bench, opts: dict, seed: int) -> list[Verdict]:

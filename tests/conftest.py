@@ -5,12 +5,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from modemverify.adapters.base import GuardedDevice
 from modemverify.adapters.python import PythonAdapter
 from modemverify.config import parse_device
 from modemverify.oracles import Bench
-from modemverify.schemes.conventions import get_convention
-from modemverify.schemes.reference import ReferenceModem
+from modemverify.runner import open_bench
 
 
 class TableModem:
@@ -44,11 +42,10 @@ def make_spec(modulation="qpsk", convention="3gpp", sps=1, checks=None, **extra)
                                     "samples_per_symbol": sps, **extra}})
 
 
-def make_bench(device, modulation="qpsk", convention="3gpp", sps=1, checks=None) -> Bench:
-    spec = make_spec(modulation, convention, sps, checks)
-    conv = get_convention(convention, modulation)
-    guarded = GuardedDevice(PythonAdapter(device), conv.bits_per_symbol, sps, name="dut")
-    return Bench(spec=spec, device=guarded, convention=conv, reference=ReferenceModem(conv, sps))
+def make_bench(device, modulation="qpsk", convention="3gpp", sps=1, checks=None,
+               **scheme) -> Bench:
+    spec = make_spec(modulation, convention, sps, checks, **scheme)
+    return open_bench(spec, PythonAdapter(device))
 
 
 @pytest.fixture

@@ -128,10 +128,14 @@ class GuardedDevice:
     """
 
     def __init__(self, adapter: ModemAdapter, bits_per_symbol: int, samples_per_symbol: int = 1,
-                 name: str = "device"):
+                 name: str = "device", *, tail_samples: int | None = 0, input_tail: int = 0):
         self.adapter = adapter
         self.k = int(bits_per_symbol)
         self.sps = int(samples_per_symbol)
+        #: samples beyond n x sps that modulate must return (None: any number)
+        self.tail_samples = tail_samples
+        #: samples beyond n x sps in the waveforms given to demodulate (the reference's tail)
+        self.input_tail = int(input_tail)
         self.name = name
         self.capabilities = frozenset(adapter.capabilities)
         self.replays_only = bool(getattr(adapter, "replays_only", False))
@@ -140,6 +144,10 @@ class GuardedDevice:
 
     def has(self, capability: str) -> bool:
         return capability in self.capabilities
+
+    def bits_for(self, n_samples: int) -> int:
+        """Bits carried by a reference waveform of ``n_samples`` samples."""
+        return max(n_samples - self.input_tail, 0) // self.sps * self.k
 
     def _call(self, call: str, summary, fn, *args):
         __tracebackhide__ = True
@@ -167,12 +175,19 @@ class GuardedDevice:
                                     call="modulate", input_summary=str(summary))
         out = out.astype(np.complex128, copy=False)
         if check_length:
-            expected = (bits.size // self.k) * self.sps
-            if out.size != expected:
+            n = bits.size // self.k
+            if self.tail_samples is not None:
+                expected = n * self.sps + self.tail_samples
+                if out.size != expected:
+                    tail = f" + {self.tail_samples} tail" if self.tail_samples else ""
+                    raise DeviceOutputError(
+                        f"returned {out.size} samples; expected {expected} "
+                        f"({n} symbols x {self.sps} samples per symbol{tail})",
+                        call="modulate", input_summary=str(summary))
+            elif n and out.size < n * self.sps // 2:
                 raise DeviceOutputError(
-                    f"returned {out.size} samples; expected {expected} "
-                    f"({bits.size // self.k} symbols x {self.sps} samples per symbol)",
-                    call="modulate", input_summary=str(summary))
+                    f"returned {out.size} samples for {n} symbols at {self.sps} samples per "
+                    f"symbol", call="modulate", input_summary=str(summary))
         # a sum is finite only if every term is (the full scan runs only to locate a problem)
         if check_finite and not np.isfinite(np.sum(out.view(np.float64))) and \
                 not np.all(np.isfinite(out)):
@@ -200,7 +215,7 @@ class GuardedDevice:
             bad = out[~((out == 0) | (out == 1))][0]
             raise DeviceOutputError(f"returned the value {bad!r}; expected bits 0/1",
                                     call="demodulate", input_summary=str(summary))
-        expected = n_bits if n_bits is not None else (samples.size // self.sps) * self.k
+        expected = n_bits if n_bits is not None else self.bits_for(samples.size)
         if check_length and out.size != expected:
             raise DeviceOutputError(f"returned {out.size} bits; expected {expected}",
                                     call="demodulate", input_summary=str(summary))
@@ -217,7 +232,7 @@ class GuardedDevice:
         if out.dtype.kind not in "iuf":
             raise DeviceOutputError(f"returned dtype {out.dtype}; expected real LLRs",
                                     call="demodulate_soft", input_summary=str(summary))
-        expected = n_bits if n_bits is not None else (samples.size // self.sps) * self.k
+        expected = n_bits if n_bits is not None else self.bits_for(samples.size)
         if out.size != expected:
             raise DeviceOutputError(f"returned {out.size} LLRs; expected {expected}",
                                     call="demodulate_soft", input_summary=str(summary))

@@ -14,6 +14,8 @@ import sys
 import traceback
 from pathlib import Path
 
+import numpy as np
+
 from ..errors import AdapterError, ConfigError
 from .base import CAPABILITIES, ModemAdapter
 
@@ -55,18 +57,64 @@ def load_target(target: str, base_dir: Path, *, file: str | None = None):
                           f"{', '.join(names) or 'none'}", file=file, key="target") from None
 
 
+def validate_format_keys(spec) -> tuple[str, float]:
+    """``sample_format`` and ``full_scale`` of a device file, checked."""
+    from ..dsp.formats import SAMPLE_FORMATS
+
+    fmt = spec.extra.get("sample_format", "complex128")
+    if fmt not in SAMPLE_FORMATS:
+        raise ConfigError(f"sample_format={fmt!r}: expected one of {', '.join(SAMPLE_FORMATS)}",
+                          file=spec.file, key="sample_format")
+    full_scale = spec.extra.get("full_scale", 1.0)
+    if isinstance(full_scale, bool) or not isinstance(full_scale, (int, float)) or \
+            not full_scale > 0:
+        raise ConfigError(f"full_scale={full_scale!r}: expected a positive number",
+                          file=spec.file, key="full_scale")
+    if "full_scale" in spec.extra and not fmt.startswith("int"):
+        raise ConfigError(f"full_scale={full_scale!r} applies to sample_format int16 or int8",
+                          file=spec.file, key="full_scale")
+    return fmt, float(full_scale)
+
+
+def decode_output(out, fmt: str, full_scale: float):
+    """A device's output in ``fmt`` as complex128 (integer codes must be integers)."""
+    from ..dsp.formats import from_format
+    from ..errors import DeviceOutputError
+
+    arr = np.asarray(out)
+    if fmt.startswith("int") and not np.issubdtype(arr.dtype, np.integer):
+        raise DeviceOutputError(f"returned dtype {arr.dtype}; sample_format {fmt} expects "
+                                f"interleaved integer I, Q codes", call="modulate")
+    try:
+        return from_format(arr, fmt, full_scale)
+    except ConfigError as exc:
+        raise DeviceOutputError(f"returned samples not in sample_format {fmt}: "
+                                f"{exc.raw_message}", call="modulate") from None
+
+
 def _where(exc: BaseException) -> str:
     tb = traceback.extract_tb(exc.__traceback__)
     return f" (line {tb[-1].lineno})" if tb else ""
 
 
 class PythonAdapter(ModemAdapter):
-    """Wraps a Python object offering modulate / demodulate / demodulate_soft."""
+    """Wraps a Python object offering modulate / demodulate / demodulate_soft.
+
+    With ``sample_format: int16`` (or ``int8``) the device returns, and receives, interleaved
+    I, Q integer codes in Q15 (Q7): value = code x ``full_scale`` / 32768 (128);
+    ``complex64`` devices exchange single-precision samples.
+    """
 
     adapter_id = "python"
+    config_keys = {
+        "sample_format": "complex128 (default), complex64, int16 or int8 (interleaved I, Q codes)",
+        "full_scale": "int16/int8: the value of the code 2**(bits-1) (default 1.0)",
+    }
 
-    def __init__(self, device):
+    def __init__(self, device, sample_format: str = "complex128", full_scale: float = 1.0):
         self.device = device
+        self.sample_format = sample_format
+        self.full_scale = float(full_scale)
         self.capabilities = frozenset(c for c in CAPABILITIES
                                       if callable(getattr(device, c, None)))
 
@@ -76,6 +124,7 @@ class PythonAdapter(ModemAdapter):
             raise ConfigError("missing key 'target': expected FILE.py:NAME or "
                               "package.module:NAME naming a callable that returns the device",
                               file=spec.file, key="target")
+        validate_format_keys(spec)
 
     @classmethod
     def from_spec(cls, spec) -> "PythonAdapter":
@@ -91,7 +140,8 @@ class PythonAdapter(ModemAdapter):
         except Exception as exc:
             raise AdapterError(f"raised {type(exc).__name__}: {exc}",
                                call=f"{spec.target} (creating the device)") from exc
-        adapter = cls(device)
+        fmt, full_scale = validate_format_keys(spec)
+        adapter = cls(device, fmt, full_scale)
         if not adapter.capabilities & {"modulate", "demodulate"}:
             raise ConfigError(f"target={spec.target!r}: the object it returns "
                               f"({type(device).__name__}) has neither modulate nor demodulate",
@@ -99,13 +149,23 @@ class PythonAdapter(ModemAdapter):
         return adapter
 
     def modulate(self, bits):
-        return self.device.modulate(bits)
+        out = self.device.modulate(bits)
+        if self.sample_format == "complex128":
+            return out
+        return decode_output(out, self.sample_format, self.full_scale)
 
     def demodulate(self, samples):
-        return self.device.demodulate(samples)
+        return self.device.demodulate(self._encode(samples))
 
     def demodulate_soft(self, samples, noise_var):
-        return self.device.demodulate_soft(samples, noise_var)
+        return self.device.demodulate_soft(self._encode(samples), noise_var)
+
+    def _encode(self, samples):
+        if self.sample_format == "complex128":
+            return samples
+        from ..dsp.formats import to_format
+
+        return to_format(samples, self.sample_format, self.full_scale)[0]
 
     def close(self):
         close = getattr(self.device, "close", None)

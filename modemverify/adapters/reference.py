@@ -34,7 +34,7 @@ class ReferenceAdapter(ModemAdapter):
             convention = get_convention(conv, spec.scheme.modulation)
         except ConfigError as exc:
             raise ConfigError(exc.raw_message, file=spec.file, key="params.convention") from None
-        return cls(ReferenceModem(convention, spec.scheme.samples_per_symbol))
+        return cls(ReferenceModem(convention, spec.scheme.samples_per_symbol, spec.scheme.pulse))
 
     def modulate(self, bits):
         return self.modem.modulate(bits)

@@ -12,7 +12,8 @@ from ..errors import ConfigError, UnknownNameError
 from ..options import validate_options
 from .base import Bench, Oracle
 
-_MODULES = ("finite", "length", "energy", "mapping", "gray", "roundtrip", "ber", "llr")
+_MODULES = ("finite", "length", "alignment", "energy", "mapping", "gray", "roundtrip",
+            "evm", "spectrum", "fixed_point", "ber", "llr")
 
 ORACLES: dict[str, Oracle] = {}
 for _m in _MODULES:

@@ -94,6 +94,11 @@ class BerOracle(Oracle):
         if not bench.convention.is_gray:
             return (f"the claimed convention {bench.convention.name!r} is not Gray; the theory "
                     f"curves assume Gray labelling")
+        shape = bench.spec.scheme.pulse.shape
+        if shape not in ("rectangular", "rrc"):
+            return (f"the theory curves assume a matched filter with no inter-symbol "
+                    f"interference (rectangular or rrc pulses); a {shape} pulse has ISI or "
+                    f"no matched-filter pair")
         return None
 
     def run(self, bench: Bench, opts, rng, seed):
@@ -127,8 +132,8 @@ class BerOracle(Oracle):
         # sub-blocks for the over-dispersion test: long enough to expect >= 2 errors at theory
         sub = byte_sym * max(1, -(-max(MIN_SUB_BLOCK, int(2 / p0)) // byte_sym))
         block = max(sub, (opts["block_bits"] // sub) * sub)
-        # a symbol held for sps samples carries sps times the symbol's energy
-        awgn = Awgn(ebn0, k, sps, energy=opts["energy"], nominal_es=float(sps))
+        # unit-energy pulses carry unit-energy symbols: Es = 1 (see vectors.channels.Awgn)
+        awgn = Awgn(ebn0, k, sps, energy=opts["energy"], nominal_es=1.0)
         sprt = Sprt(p0, p1, alpha=risk, beta=risk)
         conf = 1 - 2 * risk  # two-sided interval whose one-sided ends each carry the risk
         mode = opts["decision"]
@@ -148,7 +153,7 @@ class BerOracle(Oracle):
                 tx = impair.apply(tx, rng)
             if buf is None or buf.size != tx.size:
                 buf = np.empty(tx.size, dtype=np.complex128)
-            rx = bench.receive(awgn.apply(tx, rng, out=buf))
+            rx = bench.receive(awgn.apply(tx, rng, out=buf), n // k)
             err = np.flatnonzero(rx != bits)
             sub_counts.append(np.bincount(err // sub, minlength=-(-n // sub)))
             bits_sent += n

@@ -17,7 +17,7 @@ from .base import Oracle
 
 class EnergyOracle(Oracle):
     name = "energy"
-    summary = "average symbol energy equals the convention's normalisation"
+    summary = "energy per symbol (sum of |x|^2 over the waveform, per symbol) equals the convention's normalisation"
     options = {
         "tolerance_db": Opt("number", 0.1, "allowed deviation in dB", minimum=0),
         "nominal": Opt("number", 1.0, "expected average symbol energy", minimum=0,
@@ -29,7 +29,7 @@ class EnergyOracle(Oracle):
 
     def run(self, bench, opts, rng, seed):
         table = measure_table(bench)
-        es = float(np.mean(np.abs(table.points) ** 2))
+        es = table.energy_per_symbol
         nominal = opts["nominal"]
         if es <= 0:
             return [Verdict(self.name, "fail", "the device's average symbol energy is zero",

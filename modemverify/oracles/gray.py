@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..schemes.geometry import nearest_neighbour_pairs
+from ..schemes.geometry import MEASURED_RTOL, nearest_neighbour_pairs
 from ..schemes.labels import hamming, label_string
 from ..verdict import Verdict
 from ._table import measure_table
@@ -35,7 +35,7 @@ class GrayOracle(Oracle):
                             "the device's table has coincident or non-finite points, so "
                             "neighbours are undefined (see the mapping and finite checks)",
                             seed=seed)]
-        i, j = nearest_neighbour_pairs(pts)
+        i, j = nearest_neighbour_pairs(pts, MEASURED_RTOL)
         h = hamming(i, j)
         mean = float(h.mean())
         bad = np.nonzero(h != 1)[0]

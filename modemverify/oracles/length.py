@@ -31,41 +31,54 @@ class LengthOracle(Oracle):
     def run(self, bench, opts, rng, seed):
         lengths = sorted(set(opts["symbols"]))
         k, sps = bench.k, bench.sps
+        declared = bench.spec.scheme.tail_samples
         source = prbs("prbs15", max(lengths) * k)
         verdicts = []
         for side in ("modulate", "demodulate"):
             if not bench.device.has(side):
                 continue
-            problems = []
+            got_by_n = {}
             for n in lengths:
                 bits = source[:n * k]
                 if side == "modulate":
-                    got = bench.device.modulate(bits, check_length=False).size
-                    want = n * sps
+                    got_by_n[n] = bench.device.modulate(bits, check_length=False).size
                 else:
                     samples = bench.reference.modulate(bits)
-                    got = bench.device.demodulate(samples, check_length=False).size
-                    want = n * k
-                if got != want:
-                    problems.append((n, got, want))
-            name = f"{self.name}.{side}"
+                    got_by_n[n] = bench.device.demodulate(samples, check_length=False).size
             unit = "samples" if side == "modulate" else "bits"
+            if side == "modulate":
+                tails = {n: got - n * sps for n, got in got_by_n.items()}
+                if declared is not None:
+                    tail = declared
+                else:  # any constant tail: the most common one is the device's
+                    values, counts = np.unique(list(tails.values()), return_counts=True)
+                    tail = int(values[np.argmax(counts)])
+                want = {n: n * sps + tail for n in lengths}
+                rule = (f"{sps} samples per symbol" + (f" + a tail of {tail}" if tail else "")
+                        + ("" if declared is not None else " (tail not declared: any constant)"))
+            else:
+                want = {n: n * k for n in lengths}
+                rule = f"{k} bits per symbol"
+            problems = [(n, got_by_n[n], want[n]) for n in lengths if got_by_n[n] != want[n]]
+            name = f"{self.name}.{side}"
             if not problems:
                 verdicts.append(Verdict(name, "pass",
-                                        f"{side} output length correct for {len(lengths)} input "
-                                        f"lengths from {lengths[0]} to {lengths[-1]} symbols",
-                                        statistic=0.0, limit=0.0, seed=seed))
+                                        f"{side} output length correct ({rule}) for "
+                                        f"{len(lengths)} input lengths from {lengths[0]} to "
+                                        f"{lengths[-1]} symbols", statistic=0.0, limit=0.0,
+                                        seed=seed))
                 continue
-            n, got, want = problems[0]
+            n, got, want_n = problems[0]
             deltas = sorted({g - w for _, g, w in problems})
             pattern = (f"always {deltas[0]:+d} {unit}" if len(deltas) == 1
                        else f"off by {', '.join(f'{d:+d}' for d in deltas[:5])} {unit}")
             verdicts.append(Verdict(
                 name, "fail",
                 f"{side} returned the wrong number of {unit} for {len(problems)} of "
-                f"{len(lengths)} lengths ({pattern}); first at {n} symbols: {got} instead of "
-                f"{want}", statistic=float(len(problems)), limit=0.0, unit="lengths wrong",
-                counterexample=f"{n} symbols ({n * k} bits) -> {got} {unit}, expected {want}",
+                f"{len(lengths)} lengths ({pattern}; expected {rule}); first at {n} symbols: "
+                f"{got} instead of {want_n}", statistic=float(len(problems)), limit=0.0,
+                unit="lengths wrong",
+                counterexample=f"{n} symbols ({n * k} bits) -> {got} {unit}, expected {want_n}",
                 seed=seed, details={"wrong": [list(p) for p in problems]}))
         return verdicts
 

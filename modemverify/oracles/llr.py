@@ -54,6 +54,17 @@ def best_scale(llr: np.ndarray, bits: np.ndarray) -> tuple[float, float]:
     return s, (1 / math.sqrt(info) if info > 0 else math.inf)
 
 
+def _aligned(bench, samples, n_symbols):
+    """The device's noisy waveform lined up with the reference (for the reference demapper)."""
+    applied = bench.alignment()
+    if applied is None:
+        return samples
+    from ..dsp.align import apply_alignment
+
+    return apply_alignment(samples, applied.correction,
+                           bench.reference.waveform_length(n_symbols))
+
+
 class LlrOracle(Oracle):
     name = "llr"
     fresh_vectors = True
@@ -83,13 +94,14 @@ class LlrOracle(Oracle):
         n = opts["bits"] - opts["bits"] % (8 * k)
         bits = np.unpackbits(np.frombuffer(rng.bytes(n // 8), dtype=np.uint8))
         tx = bench.transmit(bits)
-        awgn = Awgn(ebn0, k, sps, nominal_es=float(sps))
+        awgn = Awgn(ebn0, k, sps, nominal_es=1.0)
         rx = awgn.apply(tx, rng)
         nv = awgn.noise_variance()
-        llr = bench.device.demodulate_soft(rx, nv)
+        llr = bench.device.demodulate_soft(rx, nv, n_bits=n)
         if bench.spec.scheme.llr_positive_bit == 1:
             llr = -llr  # judge everything in the positive-means-0 convention
-        ref = bench.reference.demodulate_soft(rx, nv)
+        ref = bench.reference.demodulate_soft(rx if not bench.device.has("modulate") else
+                                              _aligned(bench, rx, n // k), nv, n_symbols=n // k)
         where = f"at Eb/N0 {ebn0:g} dB over {n} bits"
         out = []
 

@@ -46,7 +46,7 @@ class RoundtripOracle(Oracle):
         def outcome(bits: np.ndarray) -> tuple[str, str] | None:
             """None when the round trip holds, else ("fail" or "error", what went wrong)."""
             try:
-                got = bench.receive(bench.transmit(bits))
+                got = bench.receive(bench.transmit(bits), bits.size // k)
             except AdapterError as exc:
                 return "error", str(exc)
             if got.size != bits.size:

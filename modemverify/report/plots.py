@@ -42,6 +42,11 @@ def constellation_plot(result, folder: Path, stem: str) -> list[Figure]:
     k = len(labels[0])
     fig, ax = plt.subplots(figsize=(6.4, 6.4), dpi=100)
     ref = conv.points
+    evm_v = next((v for v in result.verdicts if v.name == "evm" and "cloud" in v.details), None)
+    if evm_v is not None:
+        cloud = np.array(evm_v.details["cloud"])
+        ax.scatter(cloud[:, 0], cloud[:, 1], s=2, color="tab:orange", alpha=0.35,
+                   label="device symbols (EVM probe)", zorder=1)
     ax.scatter(ref.real, ref.imag, s=260, facecolors="none", edgecolors="0.6",
                label=f"{conv.name} reference")
     finite = np.isfinite(dev)
@@ -118,4 +123,69 @@ def waterfall_plot(result, folder: Path, stem: str) -> list[Figure]:
                    "curve and the limit curve shifted by the margin.")]
 
 
-PLOTTERS = [constellation_plot, waterfall_plot]
+def psd_plot(result, folder: Path, stem: str) -> list[Figure]:
+    """Welch PSD with the occupied-bandwidth edges, the declared pulse's value and the mask."""
+    v = next((v for v in result.verdicts if v.name == "spectrum.obw" and "psd" in v.details),
+             None)
+    if v is None:
+        return []
+    plt = _pyplot()
+    d = v.details
+    f = np.array(d["f_rs"])
+    psd = np.array(d["psd"])
+    db = 10 * np.log10(np.maximum(psd / psd.max(), 1e-15))
+    fig, ax = plt.subplots(figsize=(7.5, 4.5), dpi=100)
+    ax.plot(f, db, lw=0.9, label="device (Welch)")
+    for edge in d["obw_edges_rs"]:
+        ax.axvline(edge, color="tab:green", ls="--", lw=0.9)
+    half = d["expected_obw_rs"] / 2
+    for edge in (-half, half):
+        ax.axvline(edge, color="0.4", ls=":", lw=0.9)
+    ax.plot([], [], color="tab:green", ls="--", label=f"99 % OBW {d['obw_rs']:.3f} Rs")
+    ax.plot([], [], color="0.4", ls=":", label=f"declared pulse {d['expected_obw_rs']:.3f} Rs")
+    if d.get("mask"):
+        pts = np.array(d["mask"], dtype=float)
+        xs = np.concatenate([-pts[::-1, 0], pts[:, 0]])
+        ys = np.concatenate([pts[::-1, 1], pts[:, 1]])
+        ax.plot(xs, ys, color="tab:red", lw=1.2, label="mask (dBc)")
+    ax.set_xlabel("frequency offset (symbol rates)")
+    ax.set_ylabel("PSD (dB relative to peak)")
+    ax.set_ylim(max(db.min(), -100), 5)
+    ax.grid(True, alpha=0.3)
+    ax.set_title(f"{result.spec.name}: spectrum ({v.outcome.upper()} occupied bandwidth)")
+    ax.legend(fontsize=8, loc="lower center")
+    fig.tight_layout()
+    name = f"{stem}-psd.png"
+    fig.savefig(folder / name)
+    plt.close(fig)
+    return [Figure("Spectrum", name, "Welch PSD of the device's output with the measured 99 % "
+                   "occupied-bandwidth edges (dashed), the declared pulse's (dotted) and the "
+                   "mask, if one was given.")]
+
+
+def eye_plot(result, folder: Path, stem: str) -> list[Figure]:
+    """Eye diagram of the in-phase matched-filter output."""
+    v = next((v for v in result.verdicts if v.name == "evm" and "eye" in v.details), None)
+    if v is None or not v.details["eye"]["traces"]:
+        return []
+    plt = _pyplot()
+    eye = v.details["eye"]
+    sps = eye["sps"]
+    t = (np.arange(2 * sps + 1) - sps) / sps
+    fig, ax = plt.subplots(figsize=(6, 4), dpi=100)
+    for tr in eye["traces"]:
+        ax.plot(t, tr, color="tab:blue", lw=0.5, alpha=0.3)
+    ax.axvline(0, color="0.5", lw=0.8, ls=":")
+    ax.set_xlabel("time (symbols, 0 = sampling instant)")
+    ax.set_ylabel("I after the matched filter")
+    ax.set_title(f"{result.spec.name}: eye diagram")
+    ax.grid(True, alpha=0.3)
+    fig.tight_layout()
+    name = f"{stem}-eye.png"
+    fig.savefig(folder / name)
+    plt.close(fig)
+    return [Figure("Eye diagram", name, "In-phase component after alignment and the matched "
+                   "filter, two symbols around each sampling instant.")]
+
+
+PLOTTERS = [constellation_plot, waterfall_plot, psd_plot, eye_plot]

@@ -6,6 +6,9 @@ import numpy as np
 
 #: relative slack when deciding that two distances are "the same" (float32 devices, rounding)
 DISTANCE_RTOL = 1e-3
+#: the same for measured tables (filter truncation, fixed point): the next distance in every
+#: bundled constellation is at least 1.3 x the minimum (common practice for QAM: sqrt 2)
+MEASURED_RTOL = 0.05
 
 
 def distance_matrix(points: np.ndarray) -> np.ndarray:
@@ -30,3 +33,18 @@ def nearest_neighbour_pairs(points: np.ndarray, rtol: float = DISTANCE_RTOL):
     dmin = d.min()
     i, j = np.nonzero(np.triu(d <= dmin * (1 + rtol), k=1))
     return i, j
+
+
+def rotational_symmetry_deg(points: np.ndarray, rtol: float = DISTANCE_RTOL) -> float:
+    """Smallest rotation (degrees) that maps the point set onto itself: 90 for square QAM,
+    360/M for M-PSK, 180 for BPSK, 360 when there is none."""
+    p = np.asarray(points, dtype=np.complex128)
+    tol = rtol * minimum_distance(p) if len(p) > 1 else rtol
+    for m in range(len(p), 1, -1):
+        if 360 % m and m > 8:
+            continue
+        rotated = p * np.exp(2j * np.pi / m)
+        d = np.abs(rotated[:, None] - p[None, :]).min(axis=1)
+        if np.all(d <= max(tol, 1e-9)):
+            return 360.0 / m
+    return 360.0

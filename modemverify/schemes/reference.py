@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..dsp.sampling import hold, integrate_dump
 from .conventions import Convention
 from .labels import labels_to_bits
 
@@ -22,21 +21,35 @@ class ReferenceModem:
     ----------
     convention : Convention
     samples_per_symbol : int
-        Rectangular hold on transmit, integrate-and-dump on receive.
+        Oversampling of the waveform.
+    pulse : PulseShape, optional
+        The transmit pulse (unit energy) and, time-reversed, the matched filter. Default:
+        rectangular, which at one sample per symbol is no shaping at all.
+
+    Notes
+    -----
+    A waveform of ``n`` symbols has ``n * sps + pulse.tail`` samples (see
+    :class:`~modemverify.dsp.pulses.PulseShape`); symbols carry unit average energy, and so, with
+    unit-energy taps, does each symbol's pulse: ``Es = sum(abs(x)**2) / n``.
     """
 
-    def __init__(self, convention: Convention, samples_per_symbol: int = 1):
+    def __init__(self, convention: Convention, samples_per_symbol: int = 1, pulse=None):
+        from ..dsp.pulses import PulseShape
+
         self.convention = convention
         self.points = np.asarray(convention.points, dtype=np.complex128)
         self.k = convention.bits_per_symbol
         self.sps = int(samples_per_symbol)
+        self.pulse = pulse if pulse is not None else PulseShape("rectangular", self.sps)
+        self._identity = self.sps == 1 and self.pulse.shape == "rectangular"
         self._label_bits = labels_to_bits(np.arange(len(self.points)), self.k).reshape(-1, self.k)
         self._slicer = _make_slicer(self.points)
         self._axes = _separable_axes(self.points, self.k)
         self._pair = _one_bit_axes(self._axes)
 
     # -- transmit ---------------------------------------------------------------------------
-    def modulate(self, bits: np.ndarray) -> np.ndarray:
+    def map_symbols(self, bits: np.ndarray) -> np.ndarray:
+        """The symbols (one per label) for ``bits``."""
         bits = np.asarray(bits, dtype=np.uint8)
         if self._pair is not None:  # I from the first bit, Q from the second: pure arithmetic
             low, span, _, _ = self._pair
@@ -49,18 +62,42 @@ class ReferenceModem:
                 for dim in (0, 1):
                     cols[:, dim] *= span[dim]
                     cols[:, dim] += low[dim]
-            return hold(out.view(np.complex128), self.sps)
-        return hold(np.take(self.points, _labels_u8(bits, self.k)), self.sps)
+            return out.view(np.complex128)
+        return np.take(self.points, _labels_u8(bits, self.k))
+
+    def modulate(self, bits: np.ndarray) -> np.ndarray:
+        sym = self.map_symbols(bits)
+        return sym if self._identity else self.pulse.shape_symbols(sym)
+
+    def waveform_length(self, n_symbols: int) -> int:
+        return self.pulse.output_length(n_symbols)
 
     # -- receive ----------------------------------------------------------------------------
-    def symbols(self, samples: np.ndarray) -> np.ndarray:
-        return integrate_dump(np.asarray(samples, dtype=np.complex128), self.sps)
+    def symbols(self, samples: np.ndarray, n_symbols: int | None = None) -> np.ndarray:
+        """Matched filter and symbol-rate sampling (identity at one sample per symbol)."""
+        samples = np.asarray(samples, dtype=np.complex128)
+        if n_symbols is None:
+            n_symbols = max(samples.size - self.pulse.tail, 0) // self.sps
+        if self._identity:
+            return samples[:n_symbols]
+        if self.pulse.shape == "rc":
+            # the raised cosine is itself a Nyquist pulse: sampled at its peaks it has no ISI,
+            # which a matched filter would add (common practice: rc is a Tx-side Nyquist shape)
+            peaks = np.arange(n_symbols) * self.sps + int(self.pulse.delay)
+            out = np.zeros(n_symbols, dtype=np.complex128)
+            ok = peaks < samples.size
+            out[ok] = samples[peaks[ok]]
+            return out
+        return self.pulse.matched_filter(samples, n_symbols)
 
     def decide_labels(self, symbols: np.ndarray) -> np.ndarray:
         return self._slicer(np.asarray(symbols, dtype=np.complex128))
 
-    def demodulate(self, samples: np.ndarray) -> np.ndarray:
-        y = self.symbols(samples)
+    def demodulate(self, samples: np.ndarray, n_symbols: int | None = None) -> np.ndarray:
+        return self.slice_bits(self.symbols(samples, n_symbols))
+
+    def slice_bits(self, y: np.ndarray) -> np.ndarray:
+        """Hard decisions on symbols, as bits."""
         if self._pair is not None:
             _, _, threshold, upper_is_one = self._pair
             flat = np.ascontiguousarray(y, dtype=np.complex128).view(np.float64)
@@ -78,16 +115,15 @@ class ReferenceModem:
         return self._label_bits[self.decide_labels(y)].reshape(-1)
 
     def demodulate_soft(self, samples: np.ndarray, noise_var: float, *,
-                        max_log: bool = False) -> np.ndarray:
+                        max_log: bool = False, n_symbols: int | None = None) -> np.ndarray:
         """Exact (or max-log) LLRs, positive meaning bit 0.
 
         ``L(b) = ln sum_{x: b=0} exp(-|y-x|^2/N0) - ln sum_{x: b=1} exp(-|y-x|^2/N0)``
         (standard; e.g. Proakis & Salehi, *Digital Communications*, 5th ed. — section from
-        memory). ``noise_var`` is the complex noise variance per sample of ``samples``;
-        integrate-and-dump over ``sps`` samples divides it by ``sps`` at the symbol.
+        memory). ``noise_var`` is the complex noise variance per sample of ``samples``; the
+        unit-energy matched filter passes it unchanged to the symbol.
         """
-        y = self.symbols(samples)
-        noise_var = noise_var / self.sps
+        y = self.symbols(samples, n_symbols)
         out = np.empty((y.size, self.k))
         chunk = max(1, (1 << 22) // len(self.points))
         for s in range(0, y.size, chunk):

@@ -86,7 +86,7 @@ def test_golden_sets_hold_the_published_tables():
 def test_golden_set_replayed_as_a_device_passes_the_table_checks():
     result = check(ROOT / "examples" / "recorded" / "16qam-3gpp-golden.yaml")
     assert result.ok
-    assert {v.name: v.outcome for v in result.verdicts} == {
+    assert {v.name: v.outcome for v in result.verdicts if v.outcome != "skipped"} == {
         "finite": "pass", "energy": "pass", "mapping": "pass", "gray": "pass"}
 
 
@@ -267,8 +267,11 @@ def test_vectors_export_command(tmp_path):
     assert proc.returncode == 0, proc.stderr
     vs = read_vector_set(tmp_path / "16qam-ieee802.11.yaml")
     assert vs.samples_per_symbol == 4 and vs.sample_format == "int16"
-    first = labels_segment(vs)[:8]  # label 0000 held for 4 samples: (-3-3j)/sqrt(10), Table 17-9
-    np.testing.assert_allclose(first, np.repeat(S10 * np.array([-3 - 3j, -3 - 1j]), 4))
+    # label 0000 held for 4 samples: (-3-3j)/sqrt(10), IEEE 802.11-2007 Table 17-9; the held
+    # (rectangular) pulse has unit energy, so each sample is the symbol / sqrt(4)
+    first = labels_segment(vs)[:8]
+    np.testing.assert_allclose(first, np.repeat(S10 * np.array([-3 - 3j, -3 - 1j]), 4) / 2,
+                               atol=1 / 16384)
     bad = subprocess.run(run + ["--modulation", "16qam", "--out", str(tmp_path)],
                          capture_output=True, text=True, timeout=120)
     assert bad.returncode == 2 and "--all or both --modulation and --convention" in bad.stderr

@@ -44,9 +44,10 @@ def test_correct_library_passes_every_verdict(tmp_path):
     assert {"mapping", "gray", "energy", "finite", "roundtrip", "length.modulate",
             "length.demodulate"} <= set(outcomes)
     assert set(outcomes.values()) <= {"pass", "skipped"}
-    # the only skips are checks that need a soft demodulator, which this library does not have
-    assert all("soft" in v.reason or "demodulate_soft" in v.reason
-               for v in result.verdicts if v.outcome == "skipped")
+    # the only skips: checks that need a soft demodulator (this library has none), and the
+    # waveform checks, which do not apply at one sample per symbol
+    skipped = {v.name for v in result.verdicts if v.outcome == "skipped"}
+    assert skipped == {"llr", "alignment", "spectrum", "fixed_point"}, skipped
 
 
 def test_modulate_in_process_gives_the_ts_38_211_table(tmp_path):
@@ -88,8 +89,8 @@ def test_segfault_is_an_error_verdict_and_the_junit_file_is_complete(tmp_path):
     cases = {c.get("name"): c for c in suite.findall("testcase")}
     assert int(suite.get("tests")) == len(cases) >= 6
     errors = {n for n, c in cases.items() if c.find("error") is not None}
-    assert errors == {"length", "roundtrip"}
-    assert int(suite.get("errors")) == 2
+    assert errors == {"length", "roundtrip", "evm"}  # the probes longer than 6000 bits
+    assert int(suite.get("errors")) == 3
     message = cases["length"].find("error").get("message")
     assert "SIGSEGV" in message and "modulate()" in message and "bits[8192]" in message
     for name in ("finite", "energy", "mapping", "gray"):

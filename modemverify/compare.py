@@ -1,0 +1,184 @@
+"""``modemverify compare A.yaml B.yaml``: do two implementations agree on the same bits?
+
+Typical use: a fixed-point port (B) against its floating-point original (A), or a vendor's
+library against an in-house one. Both devices modulate the same bits; B is judged against A:
+
+- ``compare.mapping``: the label tables agree up to a positive gain; otherwise the transform
+  that relates them is named (the same machinery as the ``mapping`` check);
+- ``compare.alignment``: delay, gain, phase and frequency offset of B's waveform against A's,
+  and their correlation;
+- ``compare.samples``: per-sample error of B against A after alignment (RMS and peak, in
+  percent of A's RMS);
+- ``compare.evm``: EVM of B's symbols with A's symbols as the ideal, against a limit;
+- ``compare.spectrum``: largest difference of the Welch PSDs, in dB, where A's PSD is within
+  ``spectrum_floor_db`` of its peak.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+
+import numpy as np
+
+from .config import DeviceSpec, parse_device
+from .errors import AdapterError, ConfigError
+from .oracles._table import measure_table
+from .runner import RunResult, open_bench
+from .schemes.labels import label_string
+from .schemes.transforms import describe_reassignment, differing_labels, relate
+from .verdict import Verdict
+
+DEFAULTS = {"symbols": 1 << 14, "sample_error_percent": None, "evm_limit_percent": None,
+            "spectrum_tolerance_db": 1.0, "spectrum_floor_db": 40.0}
+
+
+def compare(a: DeviceSpec, b: DeviceSpec, *, seed: int = 1, evm_limit_percent=None,
+            sample_error_percent=None, spectrum_tolerance_db=1.0) -> RunResult:
+    """Compare device B against device A; every problem becomes a verdict, never an exception
+    (except a ConfigError for specs that cannot be compared)."""
+    if a.scheme.modulation != b.scheme.modulation:
+        raise ConfigError(f"cannot compare {a.scheme.modulation} ({a.name}) with "
+                          f"{b.scheme.modulation} ({b.name})", key="scheme.modulation")
+    t0 = time.perf_counter()
+    spec = _pair_spec(a, b)
+    verdicts: list[Verdict] = []
+    benches = []
+    for s in (a, b):
+        try:
+            bench = open_bench(s)
+        except AdapterError as exc:
+            verdicts.append(Verdict("compare.open", "error", f"{s.name} could not be opened: "
+                                    f"{exc}", seed=seed))
+            for bb in benches:
+                bb.device.close()
+            return RunResult(spec, verdicts, seed, time.perf_counter() - t0)
+        benches.append(bench)
+    ba, bb = benches
+    try:
+        for name, fn in (("compare.mapping", _mapping), ("compare.waveforms", _waveforms)):
+            t = time.perf_counter()
+            try:
+                out = fn(ba, bb, seed, evm_limit_percent=evm_limit_percent,
+                         sample_error_percent=sample_error_percent,
+                         spectrum_tolerance_db=spectrum_tolerance_db)
+            except AdapterError as exc:
+                out = [Verdict(name, "error", f"a device failed: {exc}", seed=seed)]
+            took = time.perf_counter() - t
+            verdicts.extend(v.with_(duration_s=took / len(out)) for v in out)
+    finally:
+        ba.device.close()
+        bb.device.close()
+    return RunResult(spec, verdicts, seed, time.perf_counter() - t0)
+
+
+def _pair_spec(a, b) -> DeviceSpec:
+    spec = parse_device({"name": f"{b.name} vs {a.name}", "adapter": "reference",
+                         "description": f"B = {b.name} ({b.file or b.adapter}) judged against "
+                                        f"A = {a.name} ({a.file or a.adapter})",
+                         "scheme": {"modulation": a.scheme.modulation,
+                                    "convention": a.scheme.convention,
+                                    "samples_per_symbol": a.scheme.samples_per_symbol}})
+    spec.scheme = a.scheme
+    spec.file = None
+    return spec
+
+
+def _mapping(ba, bb, seed, **_):
+    if not (ba.device.has("modulate") and bb.device.has("modulate")):
+        return [Verdict("compare.mapping", "skipped", "both devices need modulate", seed=seed)]
+    ta, tb = measure_table(ba), measure_table(bb)
+    k = ba.k
+    gain, bad = differing_labels(ta.points, tb.points)
+    if not bad:
+        return [Verdict("compare.mapping", "pass",
+                        f"the label tables agree (B = {gain:.4g} x A)", statistic=0.0,
+                        seed=seed)]
+    rels = relate(ta.points, tb.points)
+    if rels and rels[0].permutation is not None:
+        reason = f"B's table is A's with {rels[0].describe()}"
+    elif rels:
+        reason = f"B's table differs from A's: {describe_reassignment(rels[0].assignment, k)}"
+    else:
+        reason = (f"{len(bad)} labels of B are not on A's constellation: "
+                  f"{', '.join(label_string(l, k) for l in bad[:8])}")
+    return [Verdict("compare.mapping", "fail", reason, statistic=float(len(bad)),
+                    unit="labels differ", seed=seed)]
+
+
+def _waveforms(ba, bb, seed, *, evm_limit_percent, sample_error_percent,
+               spectrum_tolerance_db):
+    from .dsp.align import apply_alignment, estimate_alignment
+    from .dsp.evm import evm, evm_limit
+    from .dsp.psd import welch_psd
+
+    out = []
+    if not (ba.device.has("modulate") and bb.device.has("modulate")):
+        return [Verdict("compare.waveforms", "skipped", "both devices need modulate",
+                        seed=seed)]
+    k = ba.k
+    n = DEFAULTS["symbols"]
+    rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(0xC0,)))
+    bits = np.unpackbits(np.frombuffer(rng.bytes(n * k // 8 + 1), dtype=np.uint8))[:n * k]
+    wa, wb = ba.device.modulate(bits), bb.device.modulate(bits)
+    if ba.sps != bb.sps:
+        out.append(Verdict("compare.alignment", "fail",
+                           f"A has {ba.sps} and B {bb.sps} samples per symbol: the waveforms "
+                           f"cannot be compared sample by sample", seed=seed))
+        return out
+    al = estimate_alignment(wb, wa)
+    phase = math.degrees(math.atan2(al.gain.imag, al.gain.real)) if al.gain else 0.0
+    gain_db = 20 * math.log10(abs(al.gain)) if al.gain else -math.inf
+    text = (f"B is A delayed by {al.delay_samples:+.3f} samples, gain {gain_db:+.2f} dB, "
+            f"phase {phase:+.2f} deg, frequency offset {al.freq_offset:+.2e} cycles/sample; "
+            f"correlation {al.correlation:.5f}")
+    out.append(Verdict("compare.alignment", "pass" if al.correlation >= 0.9 else "fail",
+                       text if al.correlation >= 0.9 else text + ": B is not A's signal",
+                       statistic=al.correlation, limit=0.9, unit="correlation", seed=seed,
+                       details={"delay_samples": al.delay_samples, "gain_db": gain_db,
+                                "phase_deg": phase, "freq_offset": al.freq_offset}))
+    if al.correlation < 0.5 or not al.gain:
+        return out
+    yb = apply_alignment(wb, al, wa.size)
+    edge = 64 * ba.sps  # filter transients at the record's ends
+    core = slice(edge, wa.size - edge) if wa.size > 4 * edge else slice(None)
+    err = yb[core] - wa[core]
+    rms_a = math.sqrt(float(np.mean(np.abs(wa[core]) ** 2)))
+    rms = 100 * math.sqrt(float(np.mean(np.abs(err) ** 2))) / rms_a
+    peak = 100 * float(np.max(np.abs(err))) / rms_a
+    mod = ba.convention.modulation
+    evm_lim = evm_limit_percent if evm_limit_percent is not None else evm_limit(mod)
+    sample_lim = sample_error_percent if sample_error_percent is not None else evm_lim
+    if sample_lim is None:
+        sample_lim = 10.0
+    out.append(Verdict("compare.samples", "pass" if rms <= sample_lim else "fail",
+                       f"per-sample error of B against A after alignment: RMS {rms:.3f} %, "
+                       f"peak {peak:.3f} % of A's RMS (limit {sample_lim:g} % RMS)",
+                       statistic=rms, limit=sample_lim, unit="%", seed=seed))
+    # B, lined up with A's waveform, goes through A's own alignment and matched filter
+    sa = ba.device_symbols(wa, n)
+    sb = ba.device_symbols(yb, n)
+    e = evm(sb[16:-16], sa[16:-16], equalise=True)
+    if evm_lim is None:
+        out.append(Verdict("compare.evm", "skipped", f"no EVM limit for {mod}: give "
+                           f"--evm-limit", seed=seed))
+    else:
+        out.append(Verdict("compare.evm", "pass" if e.rms_percent <= evm_lim else "fail",
+                           f"EVM of B against A {e.rms_percent:.3f} % ({e.rms_db:.1f} dB), "
+                           f"peak {e.peak_percent:.3f} %; limit {evm_lim:g} %",
+                           statistic=e.rms_percent, limit=evm_lim, unit="%", seed=seed))
+    if ba.sps >= 2:
+        fa, pa = welch_psd(wa, ba.sps)
+        _, pb = welch_psd(yb, ba.sps)
+        pa_db = 10 * np.log10(np.maximum(pa / pa.max(), 1e-30))
+        pb_db = 10 * np.log10(np.maximum(pb / pb.max(), 1e-30))
+        band = pa_db >= -DEFAULTS["spectrum_floor_db"]
+        diff = float(np.max(np.abs(pb_db[band] - pa_db[band])))
+        where = float(fa[band][np.argmax(np.abs(pb_db[band] - pa_db[band]))])
+        ok = diff <= spectrum_tolerance_db
+        out.append(Verdict("compare.spectrum", "pass" if ok else "fail",
+                           f"PSDs differ by at most {diff:.2f} dB (at {where:+.3f} Rs) where A "
+                           f"is within {DEFAULTS['spectrum_floor_db']:g} dB of its peak "
+                           f"(tolerance {spectrum_tolerance_db:g} dB)", statistic=diff,
+                           limit=spectrum_tolerance_db, unit="dB", seed=seed))
+    return out
