@@ -79,7 +79,8 @@ class Verdict:
             s = f"Measured {_num(self.statistic)}{(' ' + self.unit) if self.unit else ''}"
             if self.interval is not None:
                 conf = f" {self.confidence:.0%}" if self.confidence else ""
-                s += f" ({conf.strip()} interval {_num(self.interval[0])} to {_num(self.interval[1])})"
+                lo, hi = (_num(x) for x in self.interval)
+                s += f" ({conf.strip()} interval {lo} to {hi})"
             if self.limit is not None:
                 s += f"; limit {_num(self.limit)}"
             lines.append(s)

@@ -31,7 +31,8 @@ def load_target(target: str, base_dir: Path, *, file: str | None = None):
         path = path if path.is_absolute() else base_dir / path
         if not path.is_file():
             raise ConfigError(f"target={target!r}: no file {path}", file=file, key="target")
-        mod_name = "_modemverify_target_" + hashlib.sha1(str(path.resolve()).encode()).hexdigest()[:12]
+        digest = hashlib.sha1(str(path.resolve()).encode()).hexdigest()[:12]
+        mod_name = "_modemverify_target_" + digest
         spec = importlib.util.spec_from_file_location(mod_name, path)
         module = importlib.util.module_from_spec(spec)
         sys.modules[mod_name] = module

@@ -52,6 +52,7 @@ import numpy as np
 import scipy.fft
 from scipy import optimize, signal
 
+from modemverify._checks import as_1d_complex
 from modemverify.errors import ConfigError
 
 __all__ = ["Alignment", "estimate_alignment", "apply_alignment"]
@@ -466,12 +467,4 @@ def _fft_advance(x: np.ndarray, frac: float) -> np.ndarray:
 
 
 def _as_1d_complex(x, name: str) -> np.ndarray:
-    a = np.asarray(x)
-    if a.ndim != 1 or a.size == 0:
-        raise ConfigError(f"expected a non-empty 1-D array, got shape {a.shape}", key=name)
-    if not np.issubdtype(a.dtype, np.number):
-        raise ConfigError(f"expected numbers, got dtype {a.dtype}", key=name)
-    a = np.ascontiguousarray(a, dtype=np.complex128)
-    if not np.all(np.isfinite(a)):
-        raise ConfigError("expected finite samples (found NaN or inf)", key=name)
-    return a
+    return as_1d_complex(x, name, non_empty=True)

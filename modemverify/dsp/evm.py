@@ -24,6 +24,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from modemverify._checks import as_1d_complex
 from modemverify.errors import ConfigError, UnknownNameError
 
 __all__ = [
@@ -204,12 +205,4 @@ def evm_from_snr_db(snr_db: float) -> float:
 
 
 def _as_1d_complex(x, name: str) -> np.ndarray:
-    a = np.asarray(x)
-    if a.ndim != 1:
-        raise ConfigError(f"expected a 1-D array, got shape {a.shape}", key=name)
-    if a.size and not np.issubdtype(a.dtype, np.number):
-        raise ConfigError(f"expected numbers, got dtype {a.dtype}", key=name)
-    a = np.ascontiguousarray(a, dtype=np.complex128)
-    if not np.all(np.isfinite(a)):
-        raise ConfigError("expected finite values (found NaN or inf)", key=name)
-    return a
+    return as_1d_complex(x, name)

@@ -24,6 +24,7 @@ from numbers import Real
 
 import numpy as np
 
+from modemverify._checks import as_1d_complex
 from modemverify.errors import ConfigError, UnknownNameError
 
 __all__ = ["SAMPLE_FORMATS", "parse_format", "to_format", "from_format", "clip_count", "sqnr_db"]
@@ -242,12 +243,4 @@ def sqnr_db(fixed, reference) -> float:
 
 
 def _as_1d_complex(x, name: str) -> np.ndarray:
-    a = np.asarray(x)
-    if a.ndim != 1:
-        raise ConfigError(f"expected a 1-D array, got shape {a.shape}", key=name)
-    if a.size and not np.issubdtype(a.dtype, np.number):
-        raise ConfigError(f"expected numbers, got dtype {a.dtype}", key=name)
-    a = np.ascontiguousarray(a, dtype=np.complex128)
-    if not np.all(np.isfinite(a)):
-        raise ConfigError("expected finite samples (found NaN or inf)", key=name)
-    return a
+    return as_1d_complex(x, name)

@@ -22,6 +22,7 @@ from numbers import Integral, Real
 import numpy as np
 from scipy import signal
 
+from modemverify._checks import as_1d_complex
 from modemverify.errors import ConfigError
 
 __all__ = [
@@ -398,18 +399,6 @@ def aclr(f, psd, channel_bw_rs: float, offset_rs: float) -> float:
 # argument checks
 
 
-def _as_1d_complex(x, name: str) -> np.ndarray:
-    a = np.asarray(x)
-    if a.ndim != 1:
-        raise ConfigError(f"expected a 1-D array, got shape {a.shape}", key=name)
-    if not np.issubdtype(a.dtype, np.number):
-        raise ConfigError(f"expected numbers, got dtype {a.dtype}", key=name)
-    a = np.ascontiguousarray(a, dtype=np.complex128)
-    if not np.all(np.isfinite(a)):
-        raise ConfigError("expected finite samples (found NaN or inf)", key=name)
-    return a
-
-
 def _check_int(value, name: str, low: int) -> int:
     if isinstance(value, bool) or not isinstance(value, Integral) or value < low:
         raise ConfigError(f"expected an integer >= {low}, got {value!r}", key=name)
@@ -427,3 +416,7 @@ def _check_fraction(value) -> float:
         raise ConfigError(f"expected a fraction strictly between 0 and 1, got {value!r}",
                           key="fraction")
     return float(value)
+
+
+def _as_1d_complex(x, name: str) -> np.ndarray:
+    return as_1d_complex(x, name)

@@ -49,6 +49,7 @@ from numbers import Integral, Real
 import numpy as np
 from scipy import integrate, optimize, signal
 
+from modemverify._checks import as_1d_complex
 from modemverify.errors import ConfigError, UnknownNameError
 
 __all__ = ["PULSE_SHAPES", "DEFAULT_SPAN", "pulse_taps", "PulseShape"]
@@ -542,9 +543,4 @@ def _raised_cosine_spectrum(f: np.ndarray, a: float) -> np.ndarray:
 
 
 def _as_1d_complex(x, name: str) -> np.ndarray:
-    a = np.asarray(x)
-    if a.ndim != 1:
-        raise ConfigError(f"expected a 1-D array, got shape {a.shape}", key=name)
-    if not (np.issubdtype(a.dtype, np.number) or a.dtype == np.bool_):
-        raise ConfigError(f"expected numbers, got dtype {a.dtype}", key=name)
-    return np.ascontiguousarray(a, dtype=np.complex128)
+    return as_1d_complex(x, name, finite=False)

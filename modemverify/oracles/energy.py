@@ -17,7 +17,8 @@ from .base import Oracle
 
 class EnergyOracle(Oracle):
     name = "energy"
-    summary = "energy per symbol (sum of |x|^2 over the waveform, per symbol) equals the convention's normalisation"
+    summary = ("energy per symbol (sum of |x|^2 over the waveform, per symbol) equals the "
+               "convention's normalisation")
     options = {
         "tolerance_db": Opt("number", 0.1, "allowed deviation in dB", minimum=0),
         "nominal": Opt("number", 1.0, "expected average symbol energy", minimum=0,

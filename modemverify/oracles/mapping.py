@@ -17,7 +17,7 @@ from ..schemes.transforms import (DEFAULT_TOLERANCE, describe_reassignment, diff
                                   identity_assignment, relate)
 from ..verdict import Verdict
 from ._table import measure_table
-from .base import Bench, Oracle
+from .base import Oracle
 
 
 def _fmt_point(z: complex) -> str:

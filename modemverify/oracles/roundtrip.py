@@ -54,7 +54,8 @@ class RoundtripOracle(Oracle):
             if not np.array_equal(got, bits):
                 first = int(np.argmax(got != bits))
                 sym = first // k
-                return "fail", (f"returned {_bits_text(got[sym * k:sym * k + k], k)} for symbol {sym} "
+                got_sym = _bits_text(got[sym * k:sym * k + k], k)
+                return "fail", (f"returned {got_sym} for symbol {sym} "
                         f"{_bits_text(bits[sym * k:sym * k + k], k)} "
                         f"({int(np.count_nonzero(got != bits))} bit errors)")
             return None

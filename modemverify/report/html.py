@@ -92,7 +92,8 @@ def write_report(results, folder: str | Path, *, title: str = "modemverify repor
             f"<figcaption><b>{html.escape(f.title)}.</b> {html.escape(f.caption)}</figcaption>"
             f"</figure>" for f in figures if f)
         counts = result.counts()
-        status = ("<span class='ok'>OK</span>" if result.ok else "<span class='notok'>NOT OK</span>")
+        status = ("<span class='ok'>OK</span>" if result.ok
+                  else "<span class='notok'>NOT OK</span>")
         spec = result.spec
         notes = "".join(f"<p><i>{html.escape(n)}</i></p>" for n in result.notes)
         sections.append(

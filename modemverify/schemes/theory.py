@@ -30,8 +30,7 @@ Notation: ``g = Eb/N0`` (linear), ``k = log2 M``, ``gs = k g`` (Es/N0), ``Q(x) =
   points ``d`` steps apart, averaged over the transmitted point.  The default labelling is the
   binary-reflected Gray code around the circle (point ``j`` at angle ``2 pi j / M`` carries label
   ``j ^ (j >> 1)``).  For 8-PSK the DVB-S2 labelling (ETSI EN 302 307-1, 5.4.2) has the same
-  Hamming-distance profile and hence the same BER (REFERENCE-VALUES section 3, "8-PSK Gray BER,
-  exact"; checked in the tests).
+  Hamming-distance profile and hence the same BER (checked in the tests).
 * Square M-QAM with Gray labelling per dimension, bit error: the closed form of Cho and Yoon.
 * Square M-QAM symbol error: ``Ps = 2p - p**2``, ``p = 2 (1 - 1/sqrt M) Q(sqrt(3 gs / (M - 1)))``.
 

@@ -168,7 +168,6 @@ def candidate_relations(reference: np.ndarray, device: np.ndarray,
     if ref.shape != dev.shape or not np.all(np.isfinite(dev)):
         return []
     k = int(np.log2(len(ref)))
-    rms_ref = np.sqrt(np.mean(np.abs(ref) ** 2))
     rms_dev = np.sqrt(np.mean(np.abs(dev) ** 2))
     if rms_dev == 0:
         return []

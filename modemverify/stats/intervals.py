@@ -22,12 +22,12 @@ References
 from __future__ import annotations
 
 import math
-import operator
 from typing import NamedTuple
 
 import numpy as np
 from scipy import stats
 
+from modemverify._checks import whole_number
 from modemverify.errors import ConfigError
 
 __all__ = [
@@ -73,16 +73,9 @@ class BlockIntervalResult(NamedTuple):
     method: str
 
 
+
 def _count(value, name: str, *, minimum: int) -> int:
-    if isinstance(value, (bool, np.bool_)):
-        raise ConfigError(f"{name}={value!r}: expected an integer >= {minimum}")
-    try:
-        v = operator.index(value)
-    except TypeError:
-        raise ConfigError(f"{name}={value!r}: expected an integer >= {minimum}") from None
-    if v < minimum:
-        raise ConfigError(f"{name}={v!r}: expected an integer >= {minimum}")
-    return v
+    return whole_number(value, name, minimum)
 
 
 def _confidence(value) -> float:

@@ -12,7 +12,7 @@ as ``llr >= ln A`` and *pass* (accept H0) as soon as ``llr <= ln B``, with Wald'
 ``A = (1 - beta)/alpha`` and ``B = beta/(1 - alpha)``: ``alpha`` is the risk of failing a good
 device, ``beta`` the risk of passing a device at the limit. The realised risks satisfy
 ``alpha' <= alpha/(1 - beta)``, ``beta' <= beta/(1 - alpha)`` and ``alpha' + beta' <= alpha + beta``
-(Wald 1947; REFERENCE-VALUES section 4, from memory). For devices between p0 and p1 either
+(A. Wald, Sequential Analysis, 1947 — from memory). For devices between p0 and p1 either
 decision may come; that is the indifference zone the margin defines.
 
 Exactness without a loop over bits: every correct bit adds ``ln((1-p1)/(1-p0)) < 0`` and every
@@ -33,12 +33,12 @@ References
 from __future__ import annotations
 
 import math
-import operator
 from typing import NamedTuple
 
 import numpy as np
 from scipy import optimize, stats
 
+from modemverify._checks import whole_number
 from modemverify.errors import ConfigError
 
 __all__ = [
@@ -286,16 +286,9 @@ class Sprt:
         return Decision("inconclusive", st.bits, st.errors, st.llr)
 
 
+
 def _index(value, name: str, *, minimum: int) -> int:
-    if isinstance(value, (bool, np.bool_)):
-        raise ConfigError(f"{name}={value!r}: expected an integer >= {minimum}")
-    try:
-        v = operator.index(value)
-    except TypeError:
-        raise ConfigError(f"{name}={value!r}: expected an integer >= {minimum}") from None
-    if v < minimum:
-        raise ConfigError(f"{name}={v!r}: expected an integer >= {minimum}")
-    return v
+    return whole_number(value, name, minimum)
 
 
 def fixed_sample_size(p0: float, p1: float, alpha: float = 0.05, beta: float = 0.05, *,

@@ -24,7 +24,8 @@ from typing import ClassVar
 import numpy as np
 
 from modemverify.errors import ConfigError, UnknownNameError
-from modemverify.vectors.coverage import MAX_BITS_PER_SYMBOL, _check_int
+from modemverify._checks import whole_number as _check_int
+from modemverify.vectors.coverage import MAX_BITS_PER_SYMBOL
 
 __all__ = [
     "Awgn",

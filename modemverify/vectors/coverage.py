@@ -11,10 +11,9 @@ Labels follow :mod:`modemverify.schemes.labels`: the first bit fed is the most s
 
 from __future__ import annotations
 
-from operator import index
-
 import numpy as np
 
+from modemverify._checks import whole_number
 from modemverify.errors import ConfigError
 from modemverify.schemes.labels import labels_to_bits
 
@@ -36,34 +35,8 @@ MAX_BITS_PER_SYMBOL = 16
 MAX_DE_BRUIJN_LENGTH = 1 << 24
 
 
-def _check_int(value, name: str, minimum: int | None = None,
-               maximum: int | None = None) -> int:
-    """Return ``value`` as an int in ``[minimum, maximum]`` or raise ConfigError naming it.
-
-    Booleans and floats are refused even when integral (``True``, ``4.0``): in a device file they
-    are almost always a typo for something else.
-    """
-    if minimum is not None and maximum is not None:
-        expected = f"an integer from {minimum} to {maximum}"
-    elif minimum is not None:
-        expected = f"an integer >= {minimum}"
-    elif maximum is not None:
-        expected = f"an integer <= {maximum}"
-    else:
-        expected = "an integer"
-    if isinstance(value, (bool, np.bool_)):
-        raise ConfigError(f"expected {expected}, got {value!r}", key=name)
-    try:
-        result = index(value)
-    except TypeError:
-        raise ConfigError(f"expected {expected}, got {value!r}", key=name) from None
-    if (minimum is not None and result < minimum) or (maximum is not None and result > maximum):
-        raise ConfigError(f"expected {expected}, got {value!r}", key=name)
-    return result
-
-
 def _check_bits_per_symbol(value) -> int:
-    return _check_int(value, "bits_per_symbol", 1, MAX_BITS_PER_SYMBOL)
+    return whole_number(value, "bits_per_symbol", 1, MAX_BITS_PER_SYMBOL)
 
 
 def exhaustive_labels(bits_per_symbol: int) -> np.ndarray:
@@ -132,8 +105,8 @@ def de_bruijn(alphabet_size: int, order: int = 2) -> np.ndarray:
     >>> de_bruijn(3).tolist()
     [0, 0, 1, 0, 2, 1, 1, 2, 2]
     """
-    m = _check_int(alphabet_size, "alphabet_size", 1)
-    n = _check_int(order, "order", 1)
+    m = whole_number(alphabet_size, "alphabet_size", 1)
+    n = whole_number(order, "order", 1)
     if m ** n > MAX_DE_BRUIJN_LENGTH:
         raise ConfigError(f"alphabet_size**order = {m}**{n} = {m ** n} symbols exceeds the limit "
                           f"of {MAX_DE_BRUIJN_LENGTH}; lower the order", key="order")
@@ -209,7 +182,7 @@ def de_bruijn_labels(bits_per_symbol: int, order: int = 2, linear: bool = True) 
     k = _check_bits_per_symbol(bits_per_symbol)
     seq = de_bruijn(1 << k, order)
     if linear:
-        seq = np.concatenate((seq, seq[:_check_int(order, "order", 1) - 1]))
+        seq = np.concatenate((seq, seq[:whole_number(order, "order", 1) - 1]))
     return seq
 
 

@@ -17,7 +17,8 @@ import numpy as np
 
 from modemverify.errors import UnknownNameError
 from modemverify.schemes.labels import labels_to_bits
-from modemverify.vectors.coverage import _check_bits_per_symbol, _check_int
+from modemverify._checks import whole_number as _check_int
+from modemverify.vectors.coverage import _check_bits_per_symbol
 
 __all__ = [
     "all_zeros",

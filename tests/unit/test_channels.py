@@ -1,6 +1,6 @@
 """Channel stages: AWGN calibration, impairments, composition and device-file configuration.
 
-Conventions (REFERENCE-VALUES.md, notation): complex AWGN has variance N0 (N0/2 per real
+Conventions (the vetted reference values, notation): complex AWGN has variance N0 (N0/2 per real
 dimension); Eb = Es / k. Statistical checks use exact distributions from scipy.stats at a stated
 confidence with fixed seeds, so they are deterministic.
 """
@@ -110,13 +110,13 @@ def test_measured_energy_scales_with_the_input():
 
 def theory_bpsk(ebn0_db: float) -> float:
     # Pb = Q(sqrt(2 Eb/N0)): Proakis & Salehi, Digital Communications, 5th ed., ch. 4 (section
-    # from memory); REFERENCE-VALUES.md 3.
+    # from memory); the vetted reference values 3.
     return stats.norm.sf(math.sqrt(2 * 10 ** (ebn0_db / 10)))
 
 
 @pytest.mark.parametrize("ebn0_db, table_value", [(4.0, 1.250e-2), (6.0, 2.388e-3)])
 def test_theory_matches_reference_table(ebn0_db, table_value):
-    # REFERENCE-VALUES.md 3, "BPSK Pb at given Eb/N0" (4 significant digits).
+    # the vetted reference values 3, "BPSK Pb at given Eb/N0" (4 significant digits).
     assert theory_bpsk(ebn0_db) == pytest.approx(table_value, rel=5e-4)
 
 
@@ -137,7 +137,7 @@ def test_bpsk_monte_carlo_matches_theory(ebn0_db):
 
 @pytest.mark.parametrize("ebn0_db", [4.0, 6.0])
 def test_gray_qpsk_oversampled_integrate_and_dump_matches_theory(ebn0_db):
-    # Gray QPSK has the BPSK bit error rate (REFERENCE-VALUES.md 3). With sps = 8 and a
+    # Gray QPSK has the BPSK bit error rate (the vetted reference values 3). With sps = 8 and a
     # unit-energy rectangular pulse, integrate-and-dump must see Es/N0: this checks the
     # per-sample calibration (a noise level off by a factor sps would move the BER by decades).
     sps, n_sym = 8, 100_000

@@ -1,6 +1,6 @@
 """BER confidence intervals against published values, scipy, and a bursty-error simulation.
 
-"REFERENCE-VALUES 4" is section 4 ("Statistics for BER testing") of the project's table of vetted
+"REF 4" is section 4 ("Statistics for BER testing") of the project leads' table of vetted
 reference values; rows it marks [mem] are noted "from memory".
 """
 
@@ -28,7 +28,7 @@ def test_scipy_documentation_example():
 
 
 def test_worked_example_100_errors_in_a_million():
-    # REFERENCE-VALUES 4 "check value": M. C. Jeruchim, P. Balaban, K. S. Shanmugan,
+    # REF 4 "check value": M. C. Jeruchim, P. Balaban, K. S. Shanmugan,
     # Simulation of Communication Systems, 2nd ed., 2000 -- worked example, 100 errors in 1e6
     # bits: 95 % [0.0000814, 0.0001216], 90 % [0.0000841, 0.0001181]; 5 digits from scipy there.
     ci95 = clopper_pearson(100, 10**6, 0.95)
@@ -37,7 +37,7 @@ def test_worked_example_100_errors_in_a_million():
     ci90 = clopper_pearson(100, 10**6, 0.90)
     assert ci90.low == pytest.approx(8.4140e-5, rel=1e-4)
     assert ci90.high == pytest.approx(1.1808e-4, rel=1e-4)
-    # rule of thumb (REFERENCE-VALUES 4, "~100 errors for +-20 %"; Jeruchim, IEEE JSAC 1984,
+    # rule of thumb (REF 4, "~100 errors for +-20 %"; Jeruchim, IEEE JSAC 1984,
     # attribution from memory): exact 95 % is -18.6 % / +21.6 % around the estimate
     assert ci95.low / 1e-4 - 1 == pytest.approx(-0.186, abs=5e-4)
     assert ci95.high / 1e-4 - 1 == pytest.approx(0.216, abs=5e-4)
@@ -49,11 +49,11 @@ def test_rule_of_three(n, times_n):
     # memory): 0 errors in N bits -> one-sided 95 % upper bound 1 - 0.05**(1/N) ~ 2.996/N
     ub = upper_bound(0, n, 0.95)
     assert ub == pytest.approx(1 - 0.05 ** (1 / n), rel=1e-9)
-    assert ub * n == pytest.approx(times_n, abs=1e-4)  # REFERENCE-VALUES 4 [py]
+    assert ub * n == pytest.approx(times_n, abs=1e-4)  # REF 4 [py]
 
 
 def test_rule_of_three_pitfall_two_sided():
-    # REFERENCE-VALUES 4 "pitfall": the two-sided 95 % upper end is 3.689/N, and the rule of
+    # REF 4 "pitfall": the two-sided 95 % upper end is 3.689/N, and the rule of
     # three equals the upper end of the two-sided 90 % interval
     n = 10**6
     assert clopper_pearson(0, n, 0.95).high * n == pytest.approx(3.6889, abs=1e-4)
@@ -66,7 +66,7 @@ def test_rule_of_three_pitfall_two_sided():
 @settings(max_examples=60, deadline=None)
 def test_agrees_with_scipy_binomtest_and_tail_equations(k, extra, conf):
     # Clopper & Pearson (Biometrika 26(4):404-413, 1934): the ends solve
-    # P(K >= k | low) = a/2 and P(K <= k | high) = a/2 (REFERENCE-VALUES 4).
+    # P(K >= k | low) = a/2 and P(K <= k | high) = a/2 (REF 4).
     n = k + extra
     if n == 0:
         return
@@ -92,7 +92,7 @@ def test_exact_at_low_bit_error_rates(k):
     # At BER ~1e-11 the binomial interval is the exact Poisson (gamma) interval
     # [G^-1(a/2; k), G^-1(1 - a/2; k + 1)] / n to within k/n (F. Garwood, Biometrika 1936,
     # citation from memory; common practice;
-    # REFERENCE-VALUES 4 quotes the Poisson figures -18.6 % / +21.6 % for 100 errors).
+    # REF 4 quotes the Poisson figures -18.6 % / +21.6 % for 100 errors).
     # scipy.stats.binomtest(...).proportion_ci is off by up to 13 % here (absolute brentq
     # tolerance), so this is checked against the gamma quantiles instead.
     n = 10**13
@@ -101,7 +101,7 @@ def test_exact_at_low_bit_error_rates(k):
     assert ci.low == pytest.approx(low, rel=1e-9)
     assert ci.high == pytest.approx(stats.gamma.isf(0.025, k + 1) / n, rel=1e-9)
     assert upper_bound(k, n, 0.95) == pytest.approx(stats.gamma.isf(0.05, k + 1) / n, rel=1e-9)
-    if k == 0:  # rule of three and its two-sided pitfall, REFERENCE-VALUES 4
+    if k == 0:  # rule of three and its two-sided pitfall, REF 4
         assert upper_bound(0, n) * n == pytest.approx(2.9957, abs=1e-4)
         assert ci.high * n == pytest.approx(3.6889, abs=1e-4)
     if k == 100:

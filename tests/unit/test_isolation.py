@@ -1,7 +1,7 @@
 """``isolate: true``: any adapter in a worker process; crashes, hangs and bad output as verdicts.
 
 The devices are Python modules written into the test's folder: TS 38.211 5.1.3 QPSK
-(REFERENCE-VALUES.md, 3GPP QPSK table) with a planted misbehaviour each.
+(d = ((1 - 2 b0) + j (1 - 2 b1)) / sqrt 2) with a planted misbehaviour each.
 """
 
 from __future__ import annotations

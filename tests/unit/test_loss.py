@@ -1,6 +1,6 @@
 """Implementation loss in dB, from the inverse of the theory curve.
 
-Anchors: REFERENCE-VALUES section 3 ("Eb/N0 for BPSK/QPSK Pb": 1e-4 at 8.398 dB, 1e-5 at
+Anchors: the vetted reference values, sec. 3 ("Eb/N0 for BPSK/QPSK Pb": 1e-4 at 8.398 dB, 1e-5 at
 9.588 dB; computed from Pb = Q(sqrt(2 Eb/N0)), Proakis & Salehi, 5th ed., ch. 4, section from
 memory) and section 4 (rule of three, Hanley & Lippman-Hand, JAMA 1983).
 """
@@ -35,7 +35,7 @@ def test_theory_half_a_db_lower_gives_half_a_db(mod):
 
 
 def test_published_qpsk_points():
-    # REFERENCE-VALUES 3: QPSK Pb 1e-4 at 8.398 dB, 1e-5 at 9.588 dB (3 decimals)
+    # REF 3: QPSK Pb 1e-4 at 8.398 dB, 1e-5 at 9.588 dB (3 decimals)
     assert implementation_loss_db("qpsk", 9.0, 1e-4).loss_db == pytest.approx(0.602, abs=5e-4)
     assert implementation_loss_db("qpsk", 10.0, 1e-5).loss_db == pytest.approx(0.412, abs=5e-4)
 
@@ -60,7 +60,7 @@ def test_zero_errors_give_only_an_upper_bound():
     est = loss_from_counts("qpsk", 9.0, 0, n)
     assert est.loss_db == -math.inf and est.low_db == -math.inf
     # the upper end is the loss at the exact upper BER bound (3.689/N two-sided 95 %,
-    # REFERENCE-VALUES 4 "pitfall")
+    # REF 4 "pitfall")
     assert est.high_db == pytest.approx(implementation_loss_db("qpsk", 9.0, 3.6889 / n).loss_db,
                                         abs=1e-4)
     assert est.describe() == f"at most {est.high_db:.2f} dB"

@@ -3,7 +3,7 @@
 The scripted device below implements the frame protocol from its description in
 ``modemverify/adapters/_wire.py`` with the standard library only (no modemverify import), as a
 third party would. Expected points: 3GPP TS 38.211 5.1.3 QPSK and 5.1.4 16QAM
-(REFERENCE-VALUES.md section 1 tables).
+(TS 36.211 Table 7.1.3-1 rows).
 """
 
 from __future__ import annotations
@@ -158,7 +158,7 @@ def test_python_example_device_answers_with_the_ts_38_211_table():
     try:
         assert adapter.hello["name"] == "qam16-device (Python example)"
         assert adapter.capabilities == {"modulate", "demodulate", "demodulate_soft"}
-        # REFERENCE-VALUES.md: 0001 -> (1+3j)/sqrt(10), 0110 -> (3-1j)/sqrt(10)
+        # TS 38.211 5.1.4: 0001 -> (1+3j)/sqrt(10), 0110 -> (3-1j)/sqrt(10)
         out = adapter.modulate(np.array([0, 0, 0, 1, 0, 1, 1, 0], np.uint8))
         np.testing.assert_allclose(out * np.sqrt(10), [1 + 3j, 3 - 1j], atol=1e-5)
         assert adapter.demodulate(out).tolist() == [0, 0, 0, 1, 0, 1, 1, 0]

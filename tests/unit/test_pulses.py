@@ -1,7 +1,8 @@
 """Pulse shapes: taps against independent libraries, Nyquist and energy properties, spectra.
 
-Sources are named beside each check. "REFERENCE-VALUES 5" is section 5 ("Bandwidth") of the
-project's table of vetted reference values, which cites the original documents; values it marks
+Sources are named beside each check. "REF 5" is section 5 ("Bandwidth") of the
+project leads' table of vetted reference values (kept outside this repository), which cites the
+original documents named beside each check here; values it marks
 [mem] are noted "from memory" here. Independent implementations: scikit-commpy
 (``commpy.filters.rrcosfilter``) and komm (``RaisedCosinePulse``, its ``root()``, and
 ``GaussianPulse``).
@@ -282,7 +283,7 @@ def test_theoretical_psd_integrates_to_one(shape, kw):
 
 @pytest.mark.parametrize("alpha", [0.22, 0.35, 0.5, 1.0])
 def test_raised_cosine_spectrum_confined_and_nyquist_symmetric(alpha):
-    # REFERENCE-VALUES 5, "RRC / RC absolute bandwidth": the spectrum is confined to
+    # REF 5, "RRC / RC absolute bandwidth": the spectrum is confined to
     # |f| <= (1+alpha) Rs/2 (Proakis & Salehi ch. 9, from memory); and the Nyquist criterion in
     # frequency: X(f) + X(Rs - f) = X(0) on [0, Rs] (vestigial symmetry about Rs/2).
     p = PulseShape("rrc", 8, rolloff=alpha)
@@ -300,7 +301,7 @@ def test_raised_cosine_spectrum_confined_and_nyquist_symmetric(alpha):
 @pytest.mark.parametrize("alpha, obw", [(0.22, 1.0849), (0.25, 1.1031), (0.35, 1.1667),
                                         (0.5, 1.2680), (1.0, 1.6330)])
 def test_rrc_99_percent_occupied_bandwidth(alpha, obw):
-    # REFERENCE-VALUES 5, "99 % occupied bandwidth, RRC" (values [py], 4 decimals); the
+    # REF 5, "99 % occupied bandwidth, RRC" (values [py], 4 decimals); the
     # definition (0.5 % of the power beyond each limit) is ITU Radio Regulations No. 1.153 /
     # Rec. ITU-R SM.328. The absolute bandwidth (1 + alpha) Rs is NOT the 99 % bandwidth.
     p = PulseShape("rrc", 8, rolloff=alpha)
@@ -319,7 +320,7 @@ def test_gaussian_occupied_bandwidth_closed_form():
 
 
 def test_rectangular_pulse_bandwidths():
-    # REFERENCE-VALUES 5 (Sklar, Digital Communications, 2nd ed., sec. 1.7.2, table from
+    # REF 5 (Sklar, Digital Communications, 2nd ed., sec. 1.7.2, table from
     # memory; values [py]): main lobe holds 0.902823 of the power, first nulls at +-1/Ts
     # (null-to-null 2/Ts), half-power width 0.886/Ts, 90 % width 1.697/Ts, 99 % 20.57/Ts.
     p = PulseShape("rectangular", 8)
@@ -351,12 +352,12 @@ def test_truncated_rrc_spectrum_approaches_the_closed_form():
     p = PulseShape("rrc", 16, rolloff=0.35, span=64)
     f = np.linspace(-2, 2, 801)
     assert np.max(np.abs(p.psd(f, truncated=True) - p.psd(f))) < 2e-3
-    # REFERENCE-VALUES 5: span 64, 16 samples/symbol gives 1.168 Rs in simulation ([py])
+    # REF 5: span 64, 16 samples/symbol gives 1.168 Rs in simulation ([py])
     assert p.occupied_bandwidth(truncated=True) == pytest.approx(1.1667, abs=1e-3)
 
 
 def test_welch_obw_of_rrc_qpsk_matches_theory():
-    # REFERENCE-VALUES 5: Welch PSD of simulated RRC-shaped QPSK (span 64, 16 sps) gives a 99 %
+    # REF 5: Welch PSD of simulated RRC-shaped QPSK (span 64, 16 sps) gives a 99 %
     # width of 1.168 Rs against 1.1667 from the theoretical PSD.
     rng = np.random.default_rng(5150)
     p = PulseShape("rrc", 16, rolloff=0.35, span=64)

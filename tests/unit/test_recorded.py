@@ -1,6 +1,6 @@
 """Recorded vectors: the golden sets in vectors/, the vector-set format, SigMF, and replay.
 
-Golden values are held against the published tables as REFERENCE-VALUES.md gives them:
+Golden values are held against the published tables as the vetted reference values gives them:
 3GPP TS 38.211 5.1.3 QPSK and 5.1.4 16QAM (section 1 tables); IEEE Std 802.11-2007 Table 17-7
 (BPSK: 0 -> -1, 1 -> +1), Table 17-9 (16-QAM axis: 00 -3, 01 -1, 11 +1, 10 +3; K_MOD
 1/sqrt(10)) and Table 17-10 (64-QAM axis: 000 -7, 001 -5, 011 -3, 010 -1, 110 +1, 111 +3,
@@ -34,7 +34,7 @@ VECTORS = ROOT / "vectors"
 TABLE_CHECKS = {"length": False, "roundtrip": False, "ber": False, "llr": False}
 S2, S10, S42 = 1 / np.sqrt(2), 1 / np.sqrt(10), 1 / np.sqrt(42)
 
-# REFERENCE-VALUES.md section 1, 3GPP 16QAM table, labels 0000 ... 1111 (x sqrt(10))
+# the vetted reference values section 1, 3GPP 16QAM table, labels 0000 ... 1111 (x sqrt(10))
 QAM16_3GPP = np.array([1 + 1j, 1 + 3j, 3 + 1j, 3 + 3j, 1 - 1j, 1 - 3j, 3 - 1j, 3 - 3j,
                        -1 + 1j, -1 + 3j, -3 + 1j, -3 + 3j, -1 - 1j, -1 - 3j, -3 - 1j, -3 - 3j])
 

@@ -1,6 +1,6 @@
 """Wald's SPRT for a BER limit: thresholds, exact stopping bit, operating characteristic, ASN.
 
-"REFERENCE-VALUES 4" is section 4 ("Statistics for BER testing") of the project's table of vetted
+"REF 4" is section 4 ("Statistics for BER testing") of the project leads' table of vetted
 reference values (A. Wald, Ann. Math. Statist. 16(2):117-186, 1945; A. Wald, Sequential
 Analysis, Wiley 1947). The threshold approximations and the realised-risk bounds are marked
 [mem] there: from memory.
@@ -27,7 +27,7 @@ from modemverify.stats import (Decision, Sprt, clopper_pearson, expected_sample_
 @pytest.mark.parametrize("alpha, beta, a, b", [
     (0.05, 0.05, 19.0, 0.05263), (0.05, 0.10, 18.0, 0.10526), (0.01, 0.01, 99.0, 0.010101)])
 def test_wald_thresholds(alpha, beta, a, b):
-    # REFERENCE-VALUES 4, "SPRT thresholds": A = (1 - beta)/alpha, B = beta/(1 - alpha)
+    # REF 4, "SPRT thresholds": A = (1 - beta)/alpha, B = beta/(1 - alpha)
     # (Wald 1947; approximations from memory)
     got_a, got_b = wald_thresholds(alpha, beta)
     assert got_a == pytest.approx(a, rel=1e-12)
@@ -38,7 +38,7 @@ def test_wald_thresholds(alpha, beta, a, b):
 
 
 def test_log_thresholds_symmetric_for_equal_risks():
-    # REFERENCE-VALUES 4: alpha = beta = 0.05 -> ln A = 2.944, ln B = -2.944
+    # REF 4: alpha = beta = 0.05 -> ln A = 2.944, ln B = -2.944
     t = Sprt(1e-3, 2e-3)
     assert t.log_a == pytest.approx(2.944, abs=5e-4)
     assert t.log_b == pytest.approx(-2.944, abs=5e-4)
@@ -49,7 +49,7 @@ def test_log_thresholds_symmetric_for_equal_risks():
 
 
 def reference_sprt(bits, p0, p1, alpha, beta):
-    """Textbook SPRT, one bit at a time (REFERENCE-VALUES 4, "SPRT for a BER limit"):
+    """Textbook SPRT, one bit at a time (REF 4, "SPRT for a BER limit"):
     after n bits with k errors, ln L = k ln(p1/p0) + (n - k) ln((1 - p1)/(1 - p0));
     fail when >= ln((1 - beta)/alpha), pass when <= ln(beta/(1 - alpha))."""
     ln_a = math.log((1 - beta) / alpha)
@@ -205,7 +205,7 @@ def simulate(p, p0, p1, n_streams, seed, block=512, max_blocks=400):
 
 
 def test_measured_risks_within_wald_bounds():
-    # REFERENCE-VALUES 4: realised risks alpha' <= alpha/(1 - beta), beta' <= beta/(1 - alpha)
+    # REF 4: realised risks alpha' <= alpha/(1 - beta), beta' <= beta/(1 - alpha)
     # (Wald 1947, from memory). 600 streams each; measured with these seeds: false fails at
     # p0 4.83 % and passes at p1 5.17 % (3000-stream runs: 3.7-4.4 % and 5.0-5.7 %).
     p0, p1, alpha, beta = 1e-2, 2e-2, 0.05, 0.05
@@ -241,7 +241,7 @@ def test_measured_operating_characteristic_between_hypotheses():
 
 
 def test_oc_and_asn_identities():
-    # Wald 1947 (REFERENCE-VALUES 4, from memory): L(p0) = 1 - alpha, L(p1) = beta;
+    # Wald 1947 (REF 4, from memory): L(p0) = 1 - alpha, L(p1) = beta;
     # E0[n] = ((1 - alpha) ln B + alpha ln A)/E0[z], E1[n] = (beta ln B + (1 - beta) ln A)/E1[z]
     p0, p1, alpha, beta = 1e-5, 2.8e-5, 0.05, 0.1
     la, lb = math.log((1 - beta) / alpha), math.log(beta / (1 - alpha))
@@ -289,7 +289,7 @@ def test_fixed_sample_size_meets_both_risks():
 
 
 def test_asn_ratio_qpsk_1e5_half_db_margin():
-    # QPSK at BER 1e-5 (9.588 dB, REFERENCE-VALUES 3) with a 0.5 dB margin, 5 % risks:
+    # QPSK at BER 1e-5 (9.588 dB, REF 3) with a 0.5 dB margin, 5 % risks:
     # p1 = ber('qpsk', 9.088 dB) = 2.8329e-5. Measured: fixed-sample sizes 598 761 bits (exact
     # binomial) / 579 776 (normal); Wald's ASN 334 766 at p0 and 237 245 at p1; ratios to the
     # exact fixed size 0.559 and 0.396 (to the normal one 0.577 and 0.409).

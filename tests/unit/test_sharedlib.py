@@ -1,9 +1,9 @@
 """``adapter: sharedlib`` on C modems built here, against the ABI only, into a temporary folder.
 
 Expected points: 3GPP TS 38.211 5.1.3 QPSK, d = ((1 - 2 b0) + j (1 - 2 b1)) / sqrt(2), and
-5.1.4 16QAM (REFERENCE-VALUES.md section 1 tables). Expected LLRs: the exact 3GPP QPSK LLR
-L(b0) = 2 sqrt(2) Re(y) / N0 (REFERENCE-VALUES.md section 7, y = 0.3 - 0.2j, N0 = 0.4 ->
-2.1213, -1.4142).
+5.1.4 16QAM (TS 36.211 Table 7.1.3-1 rows). Expected LLRs: the exact 3GPP QPSK LLR
+L(b0) = 2 sqrt(2) Re(y) / N0, derived from the Gaussian likelihoods (common practice; y = 0.3 -
+0.2j, N0 = 0.4 -> 2.1213, -1.4142).
 """
 
 from __future__ import annotations
@@ -28,7 +28,7 @@ pytestmark = needs_cc
 
 EXAMPLE = Path(__file__).resolve().parents[2] / "examples" / "sharedlib-c"
 S = 1 / np.sqrt(2)
-# TS 38.211 5.1.3 (REFERENCE-VALUES.md, 3GPP QPSK table): 00, 01, 10, 11
+# TS 38.211 5.1.3 (d = ((1 - 2 b0) + j (1 - 2 b1)) / sqrt 2): 00, 01, 10, 11
 QPSK_3GPP = S * np.array([1 + 1j, 1 - 1j, -1 + 1j, -1 - 1j])
 FAST = {"ber": False, "llr": False}  # the statistical checks have their own tests
 
@@ -127,7 +127,7 @@ def test_int16_q15_library(tmp_path):
     assert result.ok, [(v.name, v.reason) for v in result.verdicts]
     spec = load_device(device)
     adapter = SharedLibAdapter.from_spec(spec)
-    # REFERENCE-VALUES.md 3GPP 16QAM: 0000 -> (1+1j)/sqrt(10), 0011 -> (3+3j)/sqrt(10),
+    # TS 36.211 Table 7.1.3-1 / TS 38.211 5.1.4: 0000 -> (1+1j)/sqrt(10), 0011 -> (3+3j)/sqrt(10),
     # 1101 -> (-1-3j)/sqrt(10); Q15 quantisation: 1/sqrt(10) -> 10362/32768
     out = adapter.modulate(np.array([0, 0, 0, 0, 0, 0, 1, 1, 1, 1, 0, 1], np.uint8))
     np.testing.assert_allclose(out * np.sqrt(10), [1 + 1j, 3 + 3j, -1 - 3j], atol=1e-4)

@@ -1,6 +1,6 @@
 """Theory BER/SER curves against published values and independent computations.
 
-Sources are named beside each check. "REFERENCE-VALUES 3" is section 3 ("BER / SER over AWGN")
+Sources are named beside each check. "REF 3" is section 3 ("BER / SER over AWGN")
 of the project's table of vetted reference values, which cites the original documents; values it
 marks [mem] are noted "from memory" here.
 """
@@ -28,7 +28,7 @@ def lin(db):
 @pytest.mark.parametrize("target, ebn0_db", [(1e-3, 6.790), (1e-4, 8.398), (1e-5, 9.588),
                                              (1e-6, 10.530)])
 def test_qpsk_ebn0_for_ber_published(target, ebn0_db):
-    # REFERENCE-VALUES 3, "Eb/N0 for BPSK/QPSK Pb" (Pb = Q(sqrt(2 Eb/N0)), Proakis & Salehi,
+    # REF 3, "Eb/N0 for BPSK/QPSK Pb" (Pb = Q(sqrt(2 Eb/N0)), Proakis & Salehi,
     # Digital Communications, 5th ed., ch. 4; section from memory); 3 decimals given.
     assert ebn0_for_ber("qpsk", target) == pytest.approx(ebn0_db, abs=5e-4)
     assert ebn0_for_ber("bpsk", target) == pytest.approx(ebn0_db, abs=5e-4)
@@ -36,14 +36,14 @@ def test_qpsk_ebn0_for_ber_published(target, ebn0_db):
 
 @pytest.mark.parametrize("target", [1e-3, 1e-6, 1e-9, 1e-12])
 def test_bpsk_inverse_matches_normal_quantile(target):
-    # REFERENCE-VALUES 3 computes these as norm.isf(p)**2 / 2 (linear Eb/N0): scipy's normal
+    # REF 3 computes these as norm.isf(p)**2 / 2 (linear Eb/N0): scipy's normal
     # quantile is an independent inverse, and 1e-9/1e-12 check the far tail is not lost.
     expected = 10 * math.log10(stats.norm.isf(target) ** 2 / 2)
     assert ebn0_for_ber("bpsk", target) == pytest.approx(expected, abs=1e-9)
 
 
 def test_bpsk_values_published():
-    # REFERENCE-VALUES 3, "BPSK Pb at given Eb/N0" (4 significant digits given)
+    # REF 3, "BPSK Pb at given Eb/N0" (4 significant digits given)
     got = ber("bpsk", [0.0, 4.0, 6.0, 8.0, 10.0])
     np.testing.assert_allclose(got, [7.865e-2, 1.250e-2, 2.388e-3, 1.909e-4, 3.872e-6],
                                rtol=6e-4)
@@ -58,13 +58,13 @@ def test_bpsk_equals_scipy_normal_tail():
 
 
 def test_qpsk_ser_published():
-    # REFERENCE-VALUES 3, "QPSK symbol error (exact)": Ps = 2q - q^2, 10 dB -> 7.744201e-6
+    # REF 3, "QPSK symbol error (exact)": Ps = 2q - q^2, 10 dB -> 7.744201e-6
     # (Proakis & Salehi; the table checked it against Craig's integral)
     assert ser("qpsk", 10.0) == pytest.approx(7.744201e-6, rel=1e-6)
 
 
 def test_dbpsk_published():
-    # REFERENCE-VALUES 3, "DBPSK": Pb = exp(-Eb/N0)/2; Pb 1e-3/1e-4/1e-5/1e-6 at
+    # REF 3, "DBPSK": Pb = exp(-Eb/N0)/2; Pb 1e-3/1e-4/1e-5/1e-6 at
     # 7.934/9.303/10.342/11.180 dB (Proakis & Salehi, DPSK section; section from memory)
     for target, db in [(1e-3, 7.934), (1e-4, 9.303), (1e-5, 10.342), (1e-6, 11.180)]:
         assert ebn0_for_ber("dbpsk", target) == pytest.approx(db, abs=5e-4)
@@ -81,7 +81,7 @@ def test_dbpsk_published():
     (8, 10.0, 3.034186e-3), (16, 10.0, 8.099516e-2), (8, 6.0, 6.143974e-2),
     (16, 6.0, 2.709039e-1)])
 def test_psk_ser_published(order, ebn0_db, expected):
-    # REFERENCE-VALUES 3, "M-PSK SER values" (Craig, IEEE MILCOM 1991; two methods agree there)
+    # REF 3, "M-PSK SER values" (Craig, IEEE MILCOM 1991; two methods agree there)
     assert psk_ser(order, ebn0_db) == pytest.approx(expected, rel=1e-6)
     if order == 8:
         assert ser("8psk", ebn0_db) == pytest.approx(expected, rel=1e-6)
@@ -90,7 +90,7 @@ def test_psk_ser_published(order, ebn0_db, expected):
 def _ser_from_phase_pdf_double_integral(order, ebn0_db):
     """Ps = 1 - int_{-pi/M}^{pi/M} p(t) dt with the phase density in its textbook form
     p(t) = (1/2pi) e^{-gs sin^2 t} int_0^inf v e^{-(v - sqrt(2 gs) cos t)^2 / 2} dv
-    (REFERENCE-VALUES 3, "M-PSK symbol error, exact (phase pdf)", Proakis & Salehi; equation
+    (REF 3, "M-PSK symbol error, exact (phase pdf)", Proakis & Salehi; equation
     numbers from memory). Inner integral numerically, independent of the module's closed form."""
     gs = math.log2(order) * float(lin(ebn0_db))
 
@@ -106,14 +106,14 @@ def _ser_from_phase_pdf_double_integral(order, ebn0_db):
 
 @pytest.mark.parametrize("order, ebn0_db", [(8, 6.0), (8, 10.0), (16, 8.0)])
 def test_psk_craig_equals_phase_pdf(order, ebn0_db):
-    # two exact forms of the same probability (REFERENCE-VALUES 3: agree to 1e-9)
+    # two exact forms of the same probability (REF 3: agree to 1e-9)
     assert psk_ser(order, ebn0_db) == pytest.approx(
         _ser_from_phase_pdf_double_integral(order, ebn0_db), rel=1e-8)
 
 
 def test_psk_low_orders_reduce_to_closed_forms():
     # M = 2 and M = 4 through the general PSK machinery must give BPSK/QPSK's closed forms
-    # (REFERENCE-VALUES 3: "QPSK exact via phase-pdf integration equals Q(sqrt(2Eb/N0)) to 1e-12")
+    # (REF 3: "QPSK exact via phase-pdf integration equals Q(sqrt(2Eb/N0)) to 1e-12")
     x = np.array([-3.0, 0.0, 4.0, 8.0, 12.0, 14.0])
     q = stats.norm.sf(np.sqrt(2 * lin(x)))
     np.testing.assert_allclose(psk_ber(4, x), q, rtol=1e-9)
@@ -125,15 +125,15 @@ def test_psk_low_orders_reduce_to_closed_forms():
 @pytest.mark.parametrize("ebn0_db, expected", [(6.0, 2.048197e-2), (10.0, 1.011395e-3),
                                                (14.0, 8.756327e-7)])
 def test_8psk_gray_ber_exact_published(ebn0_db, expected):
-    # REFERENCE-VALUES 3, "8-PSK Gray BER, exact (DVB-S2 labels)": phase-pdf integral over
+    # REF 3, "8-PSK Gray BER, exact (DVB-S2 labels)": phase-pdf integral over
     # each decision sector x Hamming distance
     assert ber("8psk", ebn0_db) == pytest.approx(expected, rel=1e-6)
 
 
 def test_8psk_dvbs2_labels_same_ber_as_reflected_gray():
-    # ETSI EN 302 307-1, 5.4.2, Figure 10 (REFERENCE-VALUES 1, "DVB-S2 8PSK"): 000 -> pi/4,
+    # ETSI EN 302 307-1, 5.4.2, Figure 10 (REF 1, "DVB-S2 8PSK"): 000 -> pi/4,
     # 001 -> 0, 010 -> pi, 011 -> 5pi/4, 100 -> pi/2, 101 -> 7pi/4, 110 -> 3pi/4, 111 -> 3pi/2.
-    # REFERENCE-VALUES 3 states the BER equals the binary-reflected Gray value.
+    # REF 3 states the BER equals the binary-reflected Gray value.
     angle_of = {0b000: 1, 0b001: 0, 0b010: 4, 0b011: 5, 0b100: 2, 0b101: 7, 0b110: 3,
                 0b111: 6}  # in steps of pi/4
     around = [lab for lab, _ in sorted(angle_of.items(), key=lambda kv: kv[1])]
@@ -144,7 +144,7 @@ def test_8psk_dvbs2_labels_same_ber_as_reflected_gray():
 
 
 def test_8psk_nearest_neighbour_approximation():
-    # REFERENCE-VALUES 3: Pb ~ (2/log2 M) Q(sqrt(2 log2M Eb/N0) sin(pi/M)) (Proakis & Salehi;
+    # REF 3: Pb ~ (2/log2 M) Q(sqrt(2 log2M Eb/N0) sin(pi/M)) (Proakis & Salehi;
     # Goldsmith ch. 6); at 10 dB identical to 7 digits, at 6 dB 2.047992e-2
     def approx(db):
         return (2 / 3) * stats.norm.sf(math.sqrt(6 * float(lin(db))) * math.sin(math.pi / 8))
@@ -163,7 +163,7 @@ def test_8psk_nearest_neighbour_approximation():
     ("64qam", 6.0, 8.381678e-2), ("64qam", 10.0, 2.653271e-2), ("64qam", 14.0, 2.154004e-3),
     ("256qam", 10.0, 7.859628e-2), ("256qam", 14.0, 2.909928e-2)])
 def test_qam_ber_published(mod, ebn0_db, expected):
-    # REFERENCE-VALUES 3, "16QAM/64QAM/256QAM BER" (K. Cho and D. Yoon, IEEE Trans. Commun.
+    # REF 3, "16QAM/64QAM/256QAM BER" (K. Cho and D. Yoon, IEEE Trans. Commun.
     # 50(7):1074-1080, July 2002; formula text from memory, matched to brute force there)
     assert ber(mod, ebn0_db) == pytest.approx(expected, rel=1e-6)
 
@@ -171,7 +171,7 @@ def test_qam_ber_published(mod, ebn0_db, expected):
 @pytest.mark.parametrize("mod, ebn0_db, expected", [
     ("16qam", 10.0, 7.004294e-3), ("16qam", 14.0, 1.105280e-5), ("64qam", 10.0, 1.528598e-1)])
 def test_qam_ser_published(mod, ebn0_db, expected):
-    # REFERENCE-VALUES 3, "Square M-QAM SER (exact)" (Proakis & Salehi; section from memory)
+    # REF 3, "Square M-QAM SER (exact)" (Proakis & Salehi; section from memory)
     assert ser(mod, ebn0_db) == pytest.approx(expected, rel=1e-6)
 
 
@@ -207,7 +207,7 @@ def _gray_pam_ber_brute_force(order, ebn0_db):
 
 @pytest.mark.parametrize("order", [4, 16, 64, 256])
 def test_cho_yoon_equals_brute_force_gray_pam(order):
-    # REFERENCE-VALUES 3: the Cho & Yoon closed form matches an independent brute-force Gray
+    # REF 3: the Cho & Yoon closed form matches an independent brute-force Gray
     # PAM computation to <= 1e-11 relative for M = 4 ... 256
     for db in [-2.0, 2.0, 6.0, 10.0, 14.0, 18.0, 22.0]:
         assert qam_ber(order, db) == pytest.approx(_gray_pam_ber_brute_force(order, db),
@@ -250,7 +250,7 @@ def test_16qam_monte_carlo_inside_exact_interval():
 
 
 def test_16qam_approximation_close_at_high_snr():
-    # REFERENCE-VALUES 3, "Square M-QAM approx.": (3/8) erfc(sqrt(0.4 Eb/N0)) is within 4e-6
+    # REF 3, "Square M-QAM approx.": (3/8) erfc(sqrt(0.4 Eb/N0)) is within 4e-6
     # relative of exact for 16QAM at >= 10 dB (Proakis & Salehi; Cho & Yoon dominant term)
     from scipy.special import erfc
     for db in (10.0, 14.0):
