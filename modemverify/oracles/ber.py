@@ -40,6 +40,9 @@ from .base import Bench, Oracle
 
 #: shortest sub-block (bits) of the error counts the over-dispersion test uses
 MIN_SUB_BLOCK = 8192
+#: bits in the first block of a point (blocks then double up to block_bits); enough sub-blocks
+#: for the burst test at BERs of 1e-3 and above
+FIRST_BLOCK = 1 << 17
 #: significance level of the over-dispersion test
 DISPERSION_ALPHA = 0.01
 
@@ -76,8 +79,9 @@ class BerOracle(Oracle):
         "familywise": Opt("bool", True, "split the risk over the points (Bonferroni), so the "
                           "confidence holds for the whole check"),
         "max_bits": Opt("number", 1e7, "bit budget per point", minimum=1e3),
-        "block_bits": Opt("int", 1 << 17, "bits per device call (a multiple of 8 x bits per "
-                          "symbol is used)", minimum=64),
+        "block_bits": Opt("int", 1 << 19, "largest bits per device call; blocks start at "
+                          "2^17 bits and double, so early decisions cost little (a multiple of "
+                          "8 x bits per symbol is used)", minimum=64),
         "energy": Opt("choice", "nominal", "Es from the convention's normalisation (nominal) "
                       "or measured on the device's output (measured)",
                       choices=("nominal", "measured")),
@@ -131,7 +135,8 @@ class BerOracle(Oracle):
         byte_sym = 8 * k  # a block is whole bytes of whole symbols
         # sub-blocks for the over-dispersion test: long enough to expect >= 2 errors at theory
         sub = byte_sym * max(1, -(-max(MIN_SUB_BLOCK, int(2 / p0)) // byte_sym))
-        block = max(sub, (opts["block_bits"] // sub) * sub)
+        block_max = max(sub, (opts["block_bits"] // sub) * sub)
+        block = min(block_max, max(sub, (FIRST_BLOCK // sub) * sub))
         # unit-energy pulses carry unit-energy symbols: Es = 1 (see vectors.channels.Awgn)
         awgn = Awgn(ebn0, k, sps, energy=opts["energy"], nominal_es=1.0)
         sprt = Sprt(p0, p1, alpha=risk, beta=risk)
@@ -174,6 +179,7 @@ class BerOracle(Oracle):
                 elif r.low > p1:
                     decided = ("fail", bits_sent, errors, "interval")
             bench.progress(name, bits_sent / max_bits, f"{bits_sent:.3g} bits, {errors} errors")
+            block = min(block_max, 2 * block)
         if decided is None:
             decided = ("inconclusive", bits_sent, errors, mode)
         outcome, used_bits, used_errors, method = decided

@@ -53,16 +53,16 @@ class ReferenceModem:
         bits = np.asarray(bits, dtype=np.uint8)
         if self._pair is not None:  # I from the first bit, Q from the second: pure arithmetic
             low, span, _, _ = self._pair
-            out = bits.astype(np.float64)
             if span[0] == span[1] and low[0] == low[1]:  # scalar ops: numpy's fast loops
-                out *= span[0]
+                out = np.multiply(bits, span[0], dtype=np.float64)
                 out += low[0]
-            else:  # (n, 2) broadcasting runs an inner loop of length 2: go per column
-                cols = out.reshape(-1, 2)
-                for dim in (0, 1):
-                    cols[:, dim] *= span[dim]
-                    cols[:, dim] += low[dim]
-            return out.view(np.complex128)
+                return out.view(np.complex128)
+            # (n, 2) broadcasting would run an inner loop of length 2: go per column
+            cols = bits.astype(np.float64).reshape(-1, 2)
+            for dim in (0, 1):
+                cols[:, dim] *= span[dim]
+                cols[:, dim] += low[dim]
+            return cols.reshape(-1).view(np.complex128)
         return np.take(self.points, _labels_u8(bits, self.k))
 
     def modulate(self, bits: np.ndarray) -> np.ndarray:
