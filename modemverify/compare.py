@@ -81,6 +81,7 @@ def _pair_spec(a, b) -> DeviceSpec:
                                     "samples_per_symbol": a.scheme.samples_per_symbol}})
     spec.scheme = a.scheme
     spec.file = None
+    spec.adapter = f"{b.adapter} vs {a.adapter}"
     return spec
 
 

@@ -53,9 +53,15 @@ class EvmOracle(Oracle):
         edge = bench.spec.scheme.pulse.span if bench.spec.scheme.shaped else 0
         core = slice(edge, n - edge) if n > 4 * edge else slice(None)
         # the 3GPP EVM is measured after an equaliser: the alignment already removed the gain
-        # of a waveform; symbol-rate devices get the one-tap equaliser here
-        res = evm_of(measured[core], ideal[core], labels[core],
-                     equalise=bench.alignment() is None)
+        # of a waveform; a symbol-rate device is scaled to the reference's power (a positive
+        # gain, as the mapping check allows — a one-tap complex equaliser would hide a
+        # rotated or relabelled table, and blow up when the table is wrong)
+        m = measured[core]
+        if bench.alignment() is None:
+            p_m = float(np.vdot(m, m).real)
+            if p_m > 0:
+                m = m * np.sqrt(np.vdot(ideal[core], ideal[core]).real / p_m)
+        res = evm_of(m, ideal[core], labels[core])
         worst = sorted(res.per_label.items(), key=lambda kv: -kv[1][1])[:4]
         per_label = {label_string(int(l), k): [float(abs(mean)), float(rms)]
                      for l, (mean, rms) in res.per_label.items()}

@@ -1,7 +1,8 @@
 """Waveform-level devices: RRC shaping at 8 samples per symbol, alignment, spectrum, EVM,
 fixed point, and comparing two implementations.
 
-The devices are written independently (tests/unit/devices/waveforms.py). Published values:
+The devices are written independently of modemverify's reference (the demo scenario's
+configurable RRC build, modemverify/demo/tern_modems.py, plays a third party's code). Published values:
 the 99 % occupied bandwidth of RRC alpha = 0.35 is 1.1667 Rs (ITU RR No. 1.153 definition;
 value computed from the theoretical PSD — the project's reference sheet, [py]); the default
 EVM limits are 3GPP TS 38.104 Table 6.5.2.2-1.
@@ -9,8 +10,6 @@ EVM limits are 3GPP TS 38.104 Table 6.5.2.2-1.
 
 from __future__ import annotations
 
-import sys
-from pathlib import Path
 
 import pytest
 
@@ -19,8 +18,7 @@ from modemverify.compare import compare
 from modemverify.config import parse_device
 from modemverify.runner import check
 
-sys.path.insert(0, str(Path(__file__).parent / "devices"))
-from waveforms import RrcModem  # noqa: E402
+from modemverify.demo.tern_modems import TernRrcModem as RrcModem  # noqa: E402
 
 RRC = {"shape": "rrc", "rolloff": 0.35, "span": 10}
 FAST = {"ber": {"ebn0_db": [8.0, 10.0]}, "llr": False,
@@ -140,8 +138,8 @@ def test_fixed_point_port_clipping_and_sqnr():
 
 def spec_of(name, extra=None, **params):
     return parse_device({"name": name, "adapter": "python",
-                         "target": str(Path(__file__).parent / "devices" / "waveforms.py")
-                         + ":RrcModem", "params": params,
+                         "target": "modemverify.demo.tern_modems:TernRrcModem",
+                         "params": params,
                          "scheme": {"modulation": "16qam", "convention": "3gpp",
                                     "samples_per_symbol": 8, "pulse": RRC}, **(extra or {})})
 
