@@ -54,7 +54,8 @@ class LengthOracle(Oracle):
                     values, counts = np.unique(list(tails.values()), return_counts=True)
                     tail = int(values[np.argmax(counts)])
                 want = {n: n * sps + tail for n in lengths}
-                rule = (f"{sps} samples per symbol" + (f" + a tail of {tail}" if tail else "")
+                rule = (f"{sps} sample{'s' if sps > 1 else ''} per symbol"
+                        + (f" + a tail of {tail}" if tail else "")
                         + ("" if declared is not None else " (tail not declared: any constant)"))
             else:
                 want = {n: n * k for n in lengths}

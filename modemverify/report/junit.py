@@ -50,6 +50,9 @@ def write_atomic(path: str | Path, text: str) -> None:
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
+    umask = os.umask(0)
+    os.umask(umask)
+    os.chmod(tmp, 0o666 & ~umask)  # mkstemp makes 0600; a report is for everyone to read
     try:
         with os.fdopen(fd, "w", encoding="utf-8") as f:
             f.write(text)
