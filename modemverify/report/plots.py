@@ -28,6 +28,13 @@ def _pyplot():
     return plt
 
 
+def _save(plt, fig, folder: Path, name: str) -> str:
+    fig.tight_layout()
+    fig.savefig(folder / name)
+    plt.close(fig)
+    return name
+
+
 def constellation_plot(result, folder: Path, stem: str) -> list[Figure]:
     """Device points with their labels over the claimed convention's points."""
     mapping = next((v for v in result.verdicts if v.name == "mapping" and "table" in v.details),
@@ -69,10 +76,7 @@ def constellation_plot(result, folder: Path, stem: str) -> list[Figure]:
     ax.set_ylabel("Q")
     ax.set_title(f"{result.spec.name}: {mapping.outcome.upper()} mapping")
     ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.09), ncol=2, fontsize=8)
-    fig.tight_layout()
-    name = f"{stem}-constellation.png"
-    fig.savefig(folder / name)
-    plt.close(fig)
+    name = _save(plt, fig, folder, f"{stem}-constellation.png")
     return [Figure("Constellation", name,
                    "Device points (blue; red where they differ from the claim) with their labels "
                    "(bits in the order fed to modulate); grey circles and labels are the claimed "
@@ -113,10 +117,7 @@ def waterfall_plot(result, folder: Path, stem: str) -> list[Figure]:
     ax.grid(True, which="both", alpha=0.3)
     ax.set_title(f"{result.spec.name}: BER vs theory")
     ax.legend(fontsize=8, loc="lower left")
-    fig.tight_layout()
-    name = f"{stem}-ber.png"
-    fig.savefig(folder / name)
-    plt.close(fig)
+    name = _save(plt, fig, folder, f"{stem}-ber.png")
     return [Figure("BER waterfall", name,
                    "Measured BER (markers; bars: the confidence interval used for the decision; "
                    "a triangle marks an upper bound where no error was seen) against the theory "
@@ -154,10 +155,7 @@ def psd_plot(result, folder: Path, stem: str) -> list[Figure]:
     ax.grid(True, alpha=0.3)
     ax.set_title(f"{result.spec.name}: spectrum ({v.outcome.upper()} occupied bandwidth)")
     ax.legend(fontsize=8, loc="lower center")
-    fig.tight_layout()
-    name = f"{stem}-psd.png"
-    fig.savefig(folder / name)
-    plt.close(fig)
+    name = _save(plt, fig, folder, f"{stem}-psd.png")
     return [Figure("Spectrum", name, "Welch PSD of the device's output with the measured 99 % "
                    "occupied-bandwidth edges (dashed), the declared pulse's (dotted) and the "
                    "mask, if one was given.")]
@@ -180,10 +178,7 @@ def eye_plot(result, folder: Path, stem: str) -> list[Figure]:
     ax.set_ylabel("I after the matched filter")
     ax.set_title(f"{result.spec.name}: eye diagram")
     ax.grid(True, alpha=0.3)
-    fig.tight_layout()
-    name = f"{stem}-eye.png"
-    fig.savefig(folder / name)
-    plt.close(fig)
+    name = _save(plt, fig, folder, f"{stem}-eye.png")
     return [Figure("Eye diagram", name, "In-phase component after alignment and the matched "
                    "filter, two symbols around each sampling instant.")]
 

@@ -169,3 +169,14 @@ def test_compare_names_a_mapping_difference():
     res = compare(a, b)
     v = {x.name: x for x in res.verdicts}
     assert v["compare.mapping"].outcome == "fail" and "A's with" in v["compare.mapping"].reason
+
+
+def test_report_has_spectrum_eye_and_constellation_figures(tmp_path):
+    from modemverify.report.html import write_report
+
+    _, res = run(RrcModem(), checks={"spectrum": {"mask": [[0.6, 0], [0.8, -30]]}})
+    index = write_report([res], tmp_path)
+    html = index.read_text()
+    for kind in ("constellation", "ber", "psd", "eye"):
+        assert f"rrc-dut-{kind}.png" in html
+        assert (tmp_path / f"rrc-dut-{kind}.png").stat().st_size > 5000
