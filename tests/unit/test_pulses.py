@@ -390,3 +390,25 @@ def test_bad_arguments_raise_config_errors():
     with pytest.raises(ConfigError, match="fraction"):
         PulseShape("rrc", 8, rolloff=0.3).occupied_bandwidth(1.0)
     assert set(PULSE_SHAPES) == {"rrc", "rc", "rectangular", "gaussian"}
+
+
+@pytest.mark.parametrize("shape,kw", [("rrc", {"rolloff": 0.35, "span": 10}),
+                                      ("rc", {"rolloff": 0.5, "span": 6}),
+                                      ("gaussian", {"bt": 0.5, "span": 4})])
+@pytest.mark.parametrize("sps", [2, 4, 8])
+def test_polyphase_filters_equal_scipy_upfirdn(shape, kw, sps):
+    # the BLAS polyphase shaper and matched filter against scipy.signal.upfirdn (the
+    # general-purpose reference implementation of the same convolutions)
+    from scipy import signal
+
+    p = PulseShape(shape, sps, **kw)
+    rng = np.random.default_rng(sps)
+    n = 40_000  # crosses the shaper's chunk boundary
+    s = rng.standard_normal(n) + 1j * rng.standard_normal(n)
+    y = p.shape_symbols(s)
+    ref = signal.upfirdn(p.taps, s, up=sps)
+    np.testing.assert_allclose(y[:ref.size], ref, atol=1e-12)
+    assert not np.any(y[ref.size:])
+    x = y + 0.1 * (rng.standard_normal(y.size) + 1j * rng.standard_normal(y.size))
+    mf = signal.upfirdn(np.conj(p.taps[::-1]), x, down=sps)[p.span:p.span + n]
+    np.testing.assert_allclose(p.matched_filter(x, n), mf, atol=1e-12)
