@@ -48,64 +48,57 @@ def _is_number(x) -> bool:
     return isinstance(x, (int, float)) and not isinstance(x, bool)
 
 
+def _yaml_number(x):
+    """YAML 1.1 reads ``2e7`` as text: accept numeric text as a number."""
+    if isinstance(x, str):
+        try:
+            return float(x)
+        except ValueError:
+            return x
+    return x
+
+
+#: kinds checked by type alone: (accepts the value?, what was expected)
+_SIMPLE = {
+    "bool": (lambda v: isinstance(v, bool), "true or false"),
+    "str": (lambda v: isinstance(v, str), "text"),
+    "list": (lambda v: isinstance(v, list), "a list"),
+    "mapping": (lambda v: isinstance(v, dict), "a mapping"),
+}
+
+
 def _coerce(opt: Opt, value, *, file, key):
     short = key.rsplit(".", 1)[-1]
-    bad = ConfigError
+
+    def bad(expected):
+        return ConfigError(f"{short}={value!r}: expected {expected}", file=file, key=key)
+
+    if opt.kind in _SIMPLE:
+        accepts, expected = _SIMPLE[opt.kind]
+        if not accepts(value):
+            raise bad(expected)
+        return value
     if opt.kind == "number":
-        if isinstance(value, str):  # YAML reads 2e7 as a string
-            try:
-                value = float(value)
-            except ValueError:
-                pass
-        if not _is_number(value):
-            raise bad(f"{short}={value!r}: expected a number", file=file, key=key)
-        return float(value)
+        v = _yaml_number(value)
+        if not _is_number(v):
+            raise bad("a number")
+        return float(v)
     if opt.kind == "int":
-        if isinstance(value, str):
-            try:
-                value = float(value)
-            except ValueError:
-                pass
-        if not _is_number(value) or float(value) != int(value):
-            raise bad(f"{short}={value!r}: expected a whole number", file=file, key=key)
-        return int(value)
-    if opt.kind == "bool":
-        if not isinstance(value, bool):
-            raise bad(f"{short}={value!r}: expected true or false", file=file, key=key)
-        return value
-    if opt.kind == "str":
-        if not isinstance(value, str):
-            raise bad(f"{short}={value!r}: expected text", file=file, key=key)
-        return value
+        v = _yaml_number(value)
+        if not _is_number(v) or float(v) != int(v):
+            raise bad("a whole number")
+        return int(v)
     if opt.kind == "choice":
         if value not in opt.choices:
-            raise bad(f"{short}={value!r}: expected one of {', '.join(map(str, opt.choices))}",
-                      file=file, key=key)
+            raise bad(f"one of {', '.join(map(str, opt.choices))}")
         return value
     if opt.kind == "numbers":
-        items = value if isinstance(value, list) else [value]
-        out = []
-        for x in items:
-            if isinstance(x, str):
-                try:
-                    x = float(x)
-                except ValueError:
-                    pass
-            if not _is_number(x):
-                raise bad(f"{short}={value!r}: expected a number or a list of numbers",
-                          file=file, key=key)
-            out.append(float(x))
-        if not out:
-            raise bad(f"{short}=[]: expected at least one number", file=file, key=key)
-        return out
-    if opt.kind == "list":
-        if not isinstance(value, list):
-            raise bad(f"{short}={value!r}: expected a list", file=file, key=key)
-        return value
-    if opt.kind == "mapping":
-        if not isinstance(value, dict):
-            raise bad(f"{short}={value!r}: expected a mapping", file=file, key=key)
-        return value
+        items = [_yaml_number(x) for x in (value if isinstance(value, list) else [value])]
+        if not all(_is_number(x) for x in items):
+            raise bad("a number or a list of numbers")
+        if not items:
+            raise bad("at least one number")
+        return [float(x) for x in items]
     raise AssertionError(opt.kind)
 
 
