@@ -47,3 +47,18 @@ def as_1d_complex(x, name: str, *, non_empty: bool = False, finite: bool = True)
     if finite and not np.all(np.isfinite(a)):
         raise ConfigError("expected finite samples (found NaN or inf)", key=name)
     return a
+
+
+def number_in(value, name: str, low: float, high: float, *, open_low: bool = False,
+              open_high: bool = False, expected: str) -> float:
+    """``value`` as a float in the interval from ``low`` to ``high`` (open or closed ends), or
+    ConfigError ``name=value: expected <expected>`` (anything float() refuses is out of range)."""
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        v = float("nan")
+    above = v > low if open_low else v >= low
+    below = v < high if open_high else v <= high
+    if not (above and below):
+        raise ConfigError(f"{name}={value!r}: expected {expected}")
+    return v

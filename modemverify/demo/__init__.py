@@ -67,6 +67,7 @@ def run_demo(out: Path, *, seed: int, stream=None) -> int:
         print("Demo: NOT as expected:\n  " + "\n  ".join(surprises), file=stream)
         return 1
     print("Demo: as expected — the correct ports passed every verdict, each defective port "
-          "failed with its defect named, and the Q15 port agrees with its original. (The exit code is 0 because the demo behaved as "
-          "designed; `modemverify check` on a failing device exits 1.)", file=stream)
+          "failed with its defect named, and the Q15 port agrees with its original. (The exit "
+          "code is 0 because the demo behaved as designed; `modemverify check` on a failing "
+          "device exits 1.)", file=stream)
     return 0

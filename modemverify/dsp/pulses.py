@@ -328,7 +328,8 @@ class PulseShape:
         numpy.ndarray of complex128
             ``len(symbols) * sps + tail`` samples: the full convolution of the upsampled
             symbol train with :attr:`taps` (what ``scipy.signal.upfirdn`` computes, done
-            polyphase through BLAS), zero-padded at the end by the ``sps - 1`` samples that the upsampled train's trailing zeros would give; for
+            polyphase through BLAS), zero-padded at the end by the ``sps - 1`` samples that
+            the upsampled train's trailing zeros would give; for
             ``'rectangular'``, each symbol repeated ``sps`` times and scaled by ``1/sqrt(sps)``.
         """
         s = _as_1d_complex(symbols, "symbols")

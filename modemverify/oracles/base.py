@@ -141,7 +141,9 @@ class AppliedAlignment:
     allowed: dict
 
 
-def _measure_alignment(bench: Bench):
+def _measure_alignment(bench: Bench, allowed: dict | None = None):
+    """Measure the alignment; ``allowed`` overrides the device file's corrections (the
+    alignment check measures what a forbidden correction would have been)."""
     from dataclasses import replace as _replace
 
     from ..dsp.align import estimate_alignment
@@ -149,13 +151,13 @@ def _measure_alignment(bench: Bench):
     from ..vectors.prbs import prbs
 
     scheme = bench.spec.scheme
-    if not scheme.aligns or not bench.device.has("modulate"):
+    allowed = dict(scheme.alignment if allowed is None else allowed)
+    if not any(allowed.values()) or not bench.device.has("modulate"):
         return None
     n = ALIGNMENT_PROBE_SYMBOLS
     bits = prbs("prbs15", n * bench.k)
     raw = bench.device.modulate(bits)
     ref = bench.reference.modulate(bits)
-    allowed = dict(scheme.alignment)
     measured = estimate_alignment(raw, ref, estimate_frequency=allowed["frequency"])
     sym = rotational_symmetry_deg(bench.convention.points)
     phase = float(np.degrees(np.angle(measured.gain))) if measured.gain else 0.0

@@ -27,7 +27,7 @@ from typing import NamedTuple
 import numpy as np
 from scipy import stats
 
-from modemverify._checks import whole_number
+from modemverify._checks import number_in, whole_number
 from modemverify.errors import ConfigError
 
 __all__ = [
@@ -79,15 +79,8 @@ def _count(value, name: str, *, minimum: int) -> int:
 
 
 def _confidence(value) -> float:
-    try:
-        c = float(value)
-    except (TypeError, ValueError):
-        c = math.nan
-    if not 0.0 < c < 1.0:
-        raise ConfigError(f"confidence={value!r}: expected a number strictly between 0 and 1, "
-                          "e.g. 0.95")
-    return c
-
+    return number_in(value, "confidence", 0.0, 1.0, open_low=True, open_high=True,
+                     expected="a number strictly between 0 and 1, e.g. 0.95")
 
 def _counts(errors, n) -> tuple[int, int]:
     n = _count(n, "n", minimum=1)
@@ -277,13 +270,9 @@ def block_interval(errors_per_block, bits_per_block, confidence: float = 0.95, *
     ('clopper-pearson', True)
     """
     c = _confidence(confidence)
-    try:
-        da = float(dispersion_alpha)
-    except (TypeError, ValueError):
-        da = math.nan
-    if not 0.0 < da < 1.0:
-        raise ConfigError(f"dispersion_alpha={dispersion_alpha!r}: expected a significance "
-                          "level strictly between 0 and 1, e.g. 0.01")
+    da = number_in(dispersion_alpha, "dispersion_alpha", 0.0, 1.0, open_low=True,
+                   open_high=True, expected="a significance level strictly between 0 and 1, "
+                                            "e.g. 0.01")
     k, n = _block_arrays(errors_per_block, bits_per_block)
     total_k, total_n = int(k.sum()), int(n.sum())
     test = dispersion_test(k, n)

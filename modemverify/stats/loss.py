@@ -22,6 +22,7 @@ import math
 from typing import NamedTuple
 
 
+from modemverify._checks import number_in
 from modemverify.errors import ConfigError
 from modemverify.schemes.theory import ebn0_for_ber
 from modemverify.stats.intervals import clopper_pearson
@@ -63,14 +64,7 @@ class LossEstimate(NamedTuple):
 
 
 def _ber_value(value, name: str) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        v = math.nan
-    if not 0.0 <= v <= 1.0:
-        raise ConfigError(f"{name}={value!r}: expected a bit error rate in [0, 1]")
-    return v
-
+    return number_in(value, name, 0.0, 1.0, expected="a bit error rate in [0, 1]")
 
 def _loss_at(modulation: str, ebn0_db: float, p: float) -> float:
     if p >= 0.5:

@@ -38,7 +38,7 @@ from typing import NamedTuple
 import numpy as np
 from scipy import optimize, stats
 
-from modemverify._checks import whole_number
+from modemverify._checks import number_in, whole_number
 from modemverify.errors import ConfigError
 
 __all__ = [
@@ -76,14 +76,8 @@ class SprtState(NamedTuple):
 
 
 def _probability(value, name: str) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        v = math.nan
-    if not 0.0 < v < 1.0:
-        raise ConfigError(f"{name}={value!r}: expected a probability strictly between 0 and 1")
-    return v
-
+    return number_in(value, name, 0.0, 1.0, open_low=True, open_high=True,
+                     expected="a probability strictly between 0 and 1")
 
 def _check_pair(p0, p1) -> tuple[float, float]:
     p0 = _probability(p0, "p0")
@@ -402,14 +396,7 @@ def operating_characteristic(p_true: float, p0: float, p1: float, alpha: float =
 
 
 def _rate(p_true) -> float:
-    try:
-        p = float(p_true)
-    except (TypeError, ValueError):
-        p = math.nan
-    if not 0.0 <= p <= 1.0:
-        raise ConfigError(f"p_true={p_true!r}: expected a probability in [0, 1]")
-    return p
-
+    return number_in(p_true, "p_true", 0.0, 1.0, expected="a probability in [0, 1]")
 
 def expected_sample_size(p_true: float, p0: float, p1: float, alpha: float = 0.05,
                          beta: float = 0.05) -> float:

@@ -2,10 +2,10 @@
 fixed point, and comparing two implementations.
 
 The devices are written independently of modemverify's reference (the demo scenario's
-configurable RRC build, modemverify/demo/tern_modems.py, plays a third party's code). Published values:
-the 99 % occupied bandwidth of RRC alpha = 0.35 is 1.1667 Rs (ITU RR No. 1.153 definition;
-value computed from the theoretical PSD — the project's reference sheet, [py]); the default
-EVM limits are 3GPP TS 38.104 Table 6.5.2.2-1.
+configurable RRC build, modemverify/demo/tern_modems.py, plays a third party's code).
+Published values: the 99 % occupied bandwidth of RRC alpha = 0.35 is 1.1667 Rs (ITU RR
+No. 1.153 definition; value computed from the theoretical raised-cosine PSD); the default EVM
+limits are 3GPP TS 38.104 6.5.2.2, Table 6.5.2.2-1.
 """
 
 from __future__ import annotations
@@ -180,3 +180,10 @@ def test_report_has_spectrum_eye_and_constellation_figures(tmp_path):
     for kind in ("constellation", "ber", "psd", "eye"):
         assert f"rrc-dut-{kind}.png" in html
         assert (tmp_path / f"rrc-dut-{kind}.png").stat().st_size > 5000
+
+
+def test_every_correction_forbidden_is_still_measured_and_judged():
+    v, _ = run(TxOnly(lead=5), alignment={"delay": False, "phase": False, "frequency": False})
+    a = v["alignment"]
+    assert a.outcome == "fail" and "scheme.alignment.delay is false" in a.reason
+    assert a.details["delay_samples"] == pytest.approx(5, abs=0.05)
