@@ -11,6 +11,7 @@ limits are 3GPP TS 38.104 6.5.2.2, Table 6.5.2.2-1.
 from __future__ import annotations
 
 
+import numpy as np
 import pytest
 
 from modemverify.adapters.python import PythonAdapter
@@ -187,3 +188,34 @@ def test_every_correction_forbidden_is_still_measured_and_judged():
     a = v["alignment"]
     assert a.outcome == "fail" and "scheme.alignment.delay is false" in a.reason
     assert a.details["delay_samples"] == pytest.approx(5, abs=0.05)
+
+
+class Compressed(TxOnly):
+    """A transmit chain whose amplifier compresses the outer points (a soft limiter)."""
+
+    def modulate(self, bits):
+        y = self.m.modulate(bits)
+        return y / (1 + 0.6 * np.abs(y) ** 2)
+
+
+def test_evm_catches_a_compressing_transmitter():
+    v, _ = run(Compressed(), checks={"evm": {"limit_percent": 3.0}})
+    assert v["evm"].outcome == "fail" and v["evm"].statistic > 3.0
+    assert "worst labels" in v["evm"].reason
+    v, _ = run(TxOnly(), checks={"evm": {"limit_percent": 3.0}})
+    assert v["evm"].outcome == "pass"
+
+
+def test_sqnr_below_the_floor_fails():
+    coarse = RrcModem(fixed_point=("int8", 1.0))
+    v, _ = run(coarse, extra={"sample_format": "int8", "full_scale": 1.0},
+               checks={"fixed_point": {"min_sqnr_db": 45}})
+    assert v["fixed_point.sqnr"].outcome == "fail" and v["fixed_point.sqnr"].statistic < 45
+
+
+def test_x_db_bandwidth_limit():
+    checks = {"spectrum": {"x_db": 26, "x_db_limit_rs": 1.45}}
+    v, _ = run(RrcModem(), checks=checks)
+    assert v["spectrum.xdb"].outcome == "pass"           # alpha 0.35: about 1.34 Rs
+    v, _ = run(RrcModem(true_rolloff=1.0), checks=checks)
+    assert v["spectrum.xdb"].outcome == "fail"           # alpha 1: wider than 1.45 Rs
