@@ -12,13 +12,13 @@ from __future__ import annotations
 
 import importlib
 
-__version__ = "0.1.0"
+from ._version import __version__
 
 _EXPORTS = {
     "AdapterError": "errors", "ConfigError": "errors", "DeviceCrashed": "errors",
     "DeviceOutputError": "errors", "DeviceTimeout": "errors", "ModemVerifyError": "errors",
     "UnknownNameError": "errors",
-    "DeviceSpec": "config", "load_device": "config", "parse_device": "config",
+    "DeviceSpec": "spec", "load_device": "config", "parse_device": "config",
     "identify": "identify",
     "RunResult": "runner", "check": "runner", "check_object": "runner",
     "CONVENTIONS": "schemes.conventions", "MODULATIONS": "schemes.conventions",

@@ -8,14 +8,25 @@ from __future__ import annotations
 
 import argparse
 import json
-import signal
+import os
 import sys
 from pathlib import Path
 
-from . import __version__
-from .errors import AdapterError, ConfigError
-
-EXIT_OK, EXIT_FAIL, EXIT_USAGE = 0, 1, 2
+from ._version import __version__
+from .compare import compare
+from .config import load_device
+from .demo import run_demo
+from .errors import AdapterError, ConfigError, UnknownNameError
+from .identify import identify, render_identification
+from .oracles import ORACLES
+from .report.console import render_run
+from .report.html import write_report
+from .report.junit import write_junit
+from .runner import DEFAULT_SEED
+from .schemes.conventions import CONVENTIONS, MODULATIONS
+from .schemes.theory import THEORY_MODULATIONS, ber, ebn0_for_ber, ser
+from .session import EXIT_FAIL, EXIT_INTERRUPTED, EXIT_OK, EXIT_USAGE, run_and_report
+from .vectors.recording import SHIPPED_SETS, export_golden
 
 
 class _Parser(argparse.ArgumentParser):
@@ -35,8 +46,6 @@ def _seed(text: str) -> int:
 
 
 def build_parser() -> argparse.ArgumentParser:
-    from .runner import DEFAULT_SEED
-
     p = _Parser(prog="modemverify", description="Verify a modem implementation against "
                 "published conventions and theory.")
     p.add_argument("--version", action="version", version=f"modemverify {__version__}")
@@ -124,92 +133,20 @@ def main(argv: list[str] | None = None) -> int:
         if args.command == "vectors":
             return cmd_vectors_export(args)
         if args.command == "demo":
-            from .demo import run_demo
-
             return run_demo(Path(args.out), seed=args.seed)
     except ConfigError as exc:
         print(f"modemverify: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
     except KeyboardInterrupt:
         print("modemverify: interrupted", file=sys.stderr)
-        return 130
+        return EXIT_INTERRUPTED
     except BrokenPipeError:  # output piped into head, say: not an error of ours
-        import os
-
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return EXIT_OK
     return EXIT_USAGE
 
 
-def _terminate(signum, frame):  # SIGTERM behaves like Ctrl-C: finish writing what was measured
-    raise KeyboardInterrupt
-
-
-def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=None):
-    """Run the specs, print summaries, write JUnit and the report; return (results, exit code).
-
-    JUnit is rewritten after every device, and on an interrupt with what finished, so CI always
-    finds a complete, valid file.
-    """
-    from .report.console import render_run, render_totals
-    from .report.junit import write_junit
-    from .report.progress import ProgressLine
-    from .runner import RunResult, check
-
-    bar = ProgressLine() if ProgressLine.wanted() else None
-
-    stream = stream or sys.stdout
-    results = []
-    previous = signal.signal(signal.SIGTERM, _terminate)
-    interrupted = False
-    try:
-        for spec in specs:
-            partial: list = []
-
-            def on_verdict(v, partial=partial):
-                if bar:
-                    bar.clear()
-                partial.append(v)
-
-            try:
-                result = check(spec, seed=seed, only=only, on_verdict=on_verdict, progress=bar)
-            except KeyboardInterrupt:
-                interrupted = True
-                result = RunResult(spec, partial, seed)
-                result.notes.append("run interrupted; verdicts after this point are missing")
-                results.append(result)
-                break
-            results.append(result)
-            print(render_run(result), file=stream, flush=True)
-            if junit:
-                write_junit(results, junit)
-    finally:
-        signal.signal(signal.SIGTERM, previous)
-        if junit and results:
-            write_junit(results, junit)
-        if report and results:
-            from .report.html import write_report
-
-            write_report(results, report)
-    if interrupted:
-        last = results[-1]
-        print(f"INTERRUPTED in {last.spec.name} after {len(last.verdicts)} verdicts: the totals "
-              f"below cover only what finished", file=stream)
-    print(render_totals(results) + (" (incomplete)" if interrupted else ""), file=stream)
-    if junit:
-        print(f"JUnit: {junit}", file=stream)
-    if report:
-        print(f"Report: {Path(report) / 'index.html'}", file=stream)
-    if interrupted:
-        return results, 130
-    return results, (EXIT_OK if all(r.ok for r in results) else EXIT_FAIL)
-
-
 def cmd_check(args) -> int:
-    from .config import load_device
-    from .oracles import ORACLES
-    from .errors import UnknownNameError
-
     for name in args.only or []:
         if name not in ORACLES:
             raise UnknownNameError("check", name, ORACLES, key="--only")
@@ -233,9 +170,6 @@ def _range(text: str) -> list[float]:
 
 
 def cmd_theory(args) -> int:
-    from .schemes.theory import THEORY_MODULATIONS, ber, ebn0_for_ber, ser
-    from .errors import UnknownNameError
-
     mod = args.modulation.lower()
     if mod not in THEORY_MODULATIONS:
         raise UnknownNameError("modulation with a theory curve", mod, THEORY_MODULATIONS,
@@ -260,11 +194,6 @@ def cmd_theory(args) -> int:
 
 
 def cmd_compare(args) -> int:
-    from .compare import compare
-    from .config import load_device
-    from .report.console import render_run
-    from .report.junit import write_junit
-
     a, b = load_device(args.a), load_device(args.b)
     result = compare(a, b, seed=args.seed, evm_limit_percent=args.evm_limit,
                      sample_error_percent=args.sample_error,
@@ -274,16 +203,12 @@ def cmd_compare(args) -> int:
         write_junit([result], args.junit)
         print(f"JUnit: {args.junit}")
     if args.report:
-        from .report.html import write_report
-
         write_report([result], args.report, title="modemverify comparison")
         print(f"Report: {Path(args.report) / 'index.html'}")
     return EXIT_OK if result.ok else EXIT_FAIL
 
 
 def cmd_checks(args) -> int:
-    from .oracles import ORACLES
-
     print("Every check that applies runs; set checks.<name>: false in a device file to turn one "
           "off, or give options:")
     for name, oracle in ORACLES.items():
@@ -295,9 +220,6 @@ def cmd_checks(args) -> int:
 
 
 def cmd_identify(args) -> int:
-    from .config import load_device
-    from .identify import identify, render_identification
-
     spec = load_device(args.device)
     try:
         info = identify(spec)
@@ -312,9 +234,6 @@ def cmd_identify(args) -> int:
 
 
 def cmd_vectors_export(args) -> int:
-    from .schemes.conventions import CONVENTIONS, MODULATIONS
-    from .vectors.recording import SHIPPED_SETS, export_golden
-
     if args.all == bool(args.modulation and args.convention) or (
             not args.all and bool(args.modulation) != bool(args.convention)):
         raise ConfigError("give either --all or both --modulation and --convention",

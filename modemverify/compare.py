@@ -21,10 +21,15 @@ import time
 
 import numpy as np
 
-from .config import DeviceSpec, parse_device
+from .bench import open_bench
+from .config import parse_device
+from .dsp.align import apply_alignment, estimate_alignment
+from .dsp.evm import evm, evm_limit
+from .dsp.psd import welch_psd
 from .errors import AdapterError, ConfigError
 from .oracles._table import measure_table
-from .runner import RunResult, open_bench
+from .runner import RunResult
+from .spec import DeviceSpec
 from .schemes.labels import label_string
 from .schemes.transforms import describe_reassignment, differing_labels, relate
 from .verdict import Verdict
@@ -109,10 +114,6 @@ def _mapping(ba, bb, seed, **_):
 
 def _waveforms(ba, bb, seed, *, evm_limit_percent, sample_error_percent,
                spectrum_tolerance_db):
-    from .dsp.align import apply_alignment, estimate_alignment
-    from .dsp.evm import evm, evm_limit
-    from .dsp.psd import welch_psd
-
     out = []
     if not (ba.device.has("modulate") and bb.device.has("modulate")):
         return [Verdict("compare.waveforms", "skipped", "both devices need modulate",

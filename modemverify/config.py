@@ -7,15 +7,18 @@ dotted key, the value found and what was expected.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 import yaml
 
+from .adapters.registry import get_adapter_class
+from .dsp.pulses import PulseShape
 from .errors import ConfigError, UnknownNameError
+from .oracles import validate_checks
 from .options import Opt, validate_options
-from .schemes.conventions import CONVENTIONS, MODULATIONS, Convention, get_convention
+from .schemes.conventions import CONVENTIONS, MODULATIONS, get_convention
+from .spec import DEFAULT_TIMEOUT_S, DeviceSpec, SchemeSpec
 
 #: top-level keys every device file may have, with their descriptions (README reference)
 COMMON_KEYS: dict[str, str] = {
@@ -32,9 +35,6 @@ COMMON_KEYS: dict[str, str] = {
     "timeout_s": "per-call timeout in seconds for a device out of the harness's process "
                  "(default 10)",
 }
-
-#: default of ``timeout_s``
-DEFAULT_TIMEOUT_S = 10.0
 
 SCHEME_OPTIONS: dict[str, Opt] = {
     "modulation": Opt("choice", None, "modulation", choices=tuple(MODULATIONS)),
@@ -65,78 +65,6 @@ ALIGNMENT_OPTIONS: dict[str, Opt] = {
 }
 
 
-@dataclass
-class SchemeSpec:
-    modulation: str
-    convention: str
-    samples_per_symbol: int = 1
-    llr_positive_bit: int = 0
-    #: the declared pulse (rectangular by default)
-    pulse: "object" = None
-    #: samples beyond n x sps in the device's modulate output; None = any constant
-    tail_samples: int | None = 0
-    #: corrections the harness may apply: {"delay": bool, "phase": bool, "frequency": bool}
-    alignment: dict = field(default_factory=lambda: {"delay": False, "phase": False,
-                                                     "frequency": False})
-
-    def __post_init__(self):
-        if self.pulse is None:
-            from .dsp.pulses import PulseShape
-
-            self.pulse = PulseShape("rectangular", self.samples_per_symbol)
-
-    @property
-    def shaped(self) -> bool:
-        """True when the device's output is a waveform (a pulse, or several samples/symbol)."""
-        return self.samples_per_symbol > 1 or self.pulse.shape != "rectangular"
-
-    @property
-    def aligns(self) -> bool:
-        return any(self.alignment.values())
-
-    @property
-    def bits_per_symbol(self) -> int:
-        return MODULATIONS[self.modulation]
-
-    @property
-    def reference(self) -> Convention:
-        return get_convention(self.convention, self.modulation)
-
-    def describe(self) -> str:
-        pulse = ""
-        if self.pulse.shape != "rectangular":
-            p = self.pulse
-            extra = (f" rolloff {p.rolloff:g}" if p.rolloff is not None else
-                     f" BT {p.bt:g}" if p.bt is not None else "")
-            pulse = f", {p.shape}{extra} span {p.span}"
-        return (f"{self.modulation} ({self.convention}), {self.samples_per_symbol} "
-                f"sample{'s' if self.samples_per_symbol > 1 else ''}/symbol{pulse}")
-
-
-@dataclass
-class DeviceSpec:
-    """A validated device file."""
-
-    name: str
-    adapter: str
-    scheme: SchemeSpec
-    target: str | None = None
-    params: dict[str, Any] = field(default_factory=dict)
-    checks: dict[str, Any] = field(default_factory=dict)
-    fail_on_inconclusive: bool = False
-    isolate: bool = False
-    timeout_s: float = DEFAULT_TIMEOUT_S
-    description: str = ""
-    file: str | None = None
-    base_dir: Path = field(default_factory=Path.cwd)
-    extra: dict[str, Any] = field(default_factory=dict)
-
-    def resolve(self, path: str) -> Path:
-        """A path from the device file, relative to the file's folder."""
-        p = Path(path).expanduser()
-        return p if p.is_absolute() else (self.base_dir / p)
-
-
 def load_device(path: str | Path) -> DeviceSpec:
     """Read and validate a device file."""
     path = Path(path)
@@ -160,9 +88,6 @@ def load_device(path: str | Path) -> DeviceSpec:
 def parse_device(data: Any, *, file: str | None = None,
                  base_dir: Path | None = None) -> DeviceSpec:
     """Validate an already-parsed device mapping (see :func:`load_device`)."""
-    from .adapters.registry import get_adapter_class
-    from .oracles import validate_checks
-
     if not isinstance(data, dict):
         raise ConfigError(f"expected a mapping of keys at the top level, found "
                           f"{type(data).__name__}", file=file)
@@ -247,8 +172,6 @@ def _parse_scheme(raw: Any, file: str | None) -> SchemeSpec:
                           key="scheme.convention") from None
     sps = opts["samples_per_symbol"]
     popts = validate_options(PULSE_OPTIONS, opts["pulse"], file=file, key="scheme.pulse")
-    from .dsp.pulses import PulseShape
-
     try:
         pulse = PulseShape(popts["shape"], sps, rolloff=popts["rolloff"], span=popts["span"],
                            bt=popts["bt"])

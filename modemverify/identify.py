@@ -8,13 +8,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from .config import DeviceSpec
+from .bench import open_bench
 from .oracles._table import measure_table
-from .runner import open_bench
 from .schemes.conventions import conventions_for
 from .schemes.geometry import MEASURED_RTOL, nearest_neighbour_pairs
 from .schemes.labels import hamming, label_string
 from .schemes.transforms import DEFAULT_TOLERANCE, relate
+from .spec import DeviceSpec
 
 
 def identify(spec: DeviceSpec, tolerance: float = DEFAULT_TOLERANCE, *, adapter=None) -> dict:

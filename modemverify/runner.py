@@ -15,13 +15,13 @@ from pathlib import Path
 
 import numpy as np
 
-from . import __version__
-from .adapters.base import GuardedDevice
-from .adapters.isolated import open_adapter
-from .config import DeviceSpec, load_device
+from ._version import __version__
+from .adapters.python import PythonAdapter
+from .bench import Bench, open_bench
+from .config import load_device, parse_device
 from .errors import AdapterError
-from .oracles import ORACLES, Bench
-from .schemes.reference import ReferenceModem
+from .oracles import ORACLES
+from .spec import DeviceSpec
 from .verdict import GATING, Verdict
 
 DEFAULT_SEED = 1
@@ -57,23 +57,6 @@ class RunResult:
 
 def check_seed(seed: int, name: str) -> np.random.SeedSequence:
     return np.random.SeedSequence(seed, spawn_key=(zlib.crc32(name.encode()),))
-
-
-def open_bench(spec: DeviceSpec, adapter=None) -> Bench:
-    """Open the device of a validated spec (or use ``adapter``, already open).
-
-    Raises ConfigError or AdapterError.
-    """
-    if adapter is None:
-        # ``isolate: true`` runs the adapter in a worker process (adapters/isolated.py)
-        adapter = open_adapter(spec)
-    scheme = spec.scheme
-    device = GuardedDevice(adapter, scheme.bits_per_symbol, scheme.samples_per_symbol,
-                           name=spec.name, tail_samples=scheme.tail_samples,
-                           input_tail=scheme.pulse.tail)
-    conv = scheme.reference
-    return Bench(spec=spec, device=device, convention=conv,
-                 reference=ReferenceModem(conv, scheme.samples_per_symbol, scheme.pulse))
 
 
 def run_oracle(oracle, bench: Bench, opts: dict, seed: int) -> list[Verdict]:
@@ -179,9 +162,6 @@ def check_object(device, *, modulation: str, convention: str, samples_per_symbol
     >>> [v.name for v in result.verdicts if v.outcome == "fail"]
     []
     """
-    from .adapters.python import PythonAdapter
-    from .config import parse_device
-
     spec = parse_device({"name": name or type(device).__name__, "adapter": "python",
                          "target": "<object>:" + type(device).__name__,
                          "scheme": {"modulation": modulation, "convention": convention,

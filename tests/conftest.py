@@ -7,8 +7,7 @@ import pytest
 
 from modemverify.adapters.python import PythonAdapter
 from modemverify.config import parse_device
-from modemverify.oracles import Bench
-from modemverify.runner import open_bench
+from modemverify.bench import Bench, open_bench
 
 
 class TableModem:

@@ -22,14 +22,12 @@ from __future__ import annotations
 
 import time
 from abc import ABC, abstractmethod
-from typing import TYPE_CHECKING, ClassVar
+from typing import ClassVar
 
 import numpy as np
 
 from ..errors import AdapterError, DeviceOutputError
-
-if TYPE_CHECKING:
-    from ..config import DeviceSpec
+from ..spec import DeviceSpec
 
 CAPABILITIES = ("modulate", "demodulate", "demodulate_soft")
 

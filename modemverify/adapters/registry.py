@@ -15,6 +15,7 @@ import os
 from importlib.metadata import entry_points
 
 from ..errors import ConfigError, UnknownNameError
+from .base import ModemAdapter
 
 ENTRY_POINT_GROUP = "modemverify.adapters"
 
@@ -46,8 +47,6 @@ def get_adapter_class(name: str):
     UnknownNameError
         Naming the installed adapters.
     """
-    from .base import ModemAdapter
-
     if name in BUILTIN:
         module, _, attr = BUILTIN[name].partition(":")
         return getattr(importlib.import_module(module), attr)

@@ -5,6 +5,13 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
+from ..compare import compare
+from ..config import load_device
+from ..report.console import render_run
+from ..report.html import write_report
+from ..report.junit import write_junit
+from ..session import EXIT_INTERRUPTED, run_and_report
+
 HERE = Path(__file__).resolve().parent
 
 #: device file -> (should the device pass?, {check: words its reason must contain})
@@ -25,9 +32,6 @@ COMPARISON = ("tern-16qam-rrc-port.yaml", "tern-16qam-rrc-q15.yaml")
 
 def run_demo(out: Path, *, seed: int, stream=None) -> int:
     """Run the scenario; exit 0 when every device got the verdict the scenario expects."""
-    from ..cli import run_and_report
-    from ..config import load_device
-
     stream = stream or sys.stdout
     print("modemverify demo: an invented scenario (modemverify/demo/SCENARIO.md): candidate "
           "ports of a 16QAM/QPSK modem, some correct, most with one defect each, and a "
@@ -36,7 +40,7 @@ def run_demo(out: Path, *, seed: int, stream=None) -> int:
     out.mkdir(parents=True, exist_ok=True)
     results, code = run_and_report(specs, seed=seed, junit=str(out / "junit.xml"),
                                    report=str(out / "report"), stream=stream)
-    if code == 130:
+    if code == EXIT_INTERRUPTED:
         return code
     surprises = []
     for result, (name, (should_pass, reasons)) in zip(results, EXPECTED.items()):
@@ -46,17 +50,12 @@ def run_demo(out: Path, *, seed: int, stream=None) -> int:
             v = next((v for v in result.verdicts if v.name == check), None)
             if v is None or v.outcome != "fail" or words not in v.reason:
                 surprises.append(f"{name}: expected {check} to fail naming {words!r}")
-    from ..compare import compare
-    from ..report.console import render_run
-    from ..report.junit import write_junit
 
     a, b = (load_device(HERE / name) for name in COMPARISON)
     print(f"\n-- compare: {b.name} judged against {a.name}", file=stream)
     cmp = compare(a, b, seed=seed)
     print(render_run(cmp), file=stream)
     write_junit([cmp], out / "compare-junit.xml")
-    from ..report.html import write_report
-
     write_report(results + [cmp], out / "report", title="modemverify demo report")
     print(f"JUnit: {out / 'compare-junit.xml'}; the report above now includes the comparison",
           file=stream)

@@ -6,19 +6,17 @@ instance of an :class:`~modemverify.oracles.base.Oracle` subclass, listed in ``_
 
 from __future__ import annotations
 
-import importlib
-
 from ..errors import ConfigError, UnknownNameError
 from ..options import validate_options
-from .base import Bench, Oracle
+from . import (alignment, ber, energy, evm, finite, fixed_point, gray, length, llr, mapping,
+               roundtrip, spectrum)
+from .base import Oracle
 
-_MODULES = ("finite", "length", "alignment", "energy", "mapping", "gray", "roundtrip",
-            "evm", "spectrum", "fixed_point", "ber", "llr")
+#: the oracle modules, in the order their checks run
+_MODULES = (finite, length, alignment, energy, mapping, gray, roundtrip, evm, spectrum,
+            fixed_point, ber, llr)
 
-ORACLES: dict[str, Oracle] = {}
-for _m in _MODULES:
-    _o = importlib.import_module(f"{__name__}.{_m}").ORACLE
-    ORACLES[_o.name] = _o
+ORACLES: dict[str, Oracle] = {m.ORACLE.name: m.ORACLE for m in _MODULES}
 
 
 def validate_checks(raw, spec, *, file: str | None) -> dict[str, dict | None]:
@@ -42,4 +40,4 @@ def validate_checks(raw, spec, *, file: str | None) -> dict[str, dict | None]:
     return out
 
 
-__all__ = ["ORACLES", "Oracle", "Bench", "validate_checks"]
+__all__ = ["ORACLES", "Oracle", "validate_checks"]

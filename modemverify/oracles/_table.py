@@ -9,7 +9,7 @@ import numpy as np
 from ..schemes.geometry import minimum_distance
 from ..schemes.labels import bits_to_labels, labels_to_bits
 from ..vectors.coverage import de_bruijn_labels
-from .base import Bench
+from ..bench import Bench
 
 
 @dataclass(frozen=True)

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..bench import measure_alignment
 from ..options import Opt
 from ..verdict import Verdict
 from .base import Oracle
@@ -43,10 +44,9 @@ class AlignmentOracle(Oracle):
         scheme = bench.spec.scheme
         applied = bench.alignment()
         if applied is None:  # every correction forbidden: measure anyway, to judge it
-            from .base import _measure_alignment
 
             everything = {"delay": True, "phase": True, "frequency": True}
-            measured = _measure_alignment(bench, everything).measured
+            measured = measure_alignment(bench, everything).measured
             phase = float(np.degrees(np.angle(measured.gain))) if measured.gain else 0.0
             allowed = dict(scheme.alignment)
         else:

@@ -1,4 +1,4 @@
-"""What every oracle shares: the bench it judges a device on, and the Oracle contract.
+"""The Oracle contract: one property of a device, judged on a :class:`~modemverify.bench.Bench`.
 
 An oracle is a pure function of (bench, options, rng) that returns Verdicts. It never imports a
 reporter, and never lets a device's misbehaviour escape as an exception: the runner turns an
@@ -8,86 +8,13 @@ more (which label, which length) catches it itself.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Callable, ClassVar
+from typing import ClassVar
 
 import numpy as np
 
-from ..adapters.base import GuardedDevice
+from ..bench import Bench
 from ..options import Opt
-from ..schemes.conventions import Convention
-from ..schemes.reference import ReferenceModem
 from ..verdict import Verdict
-
-if TYPE_CHECKING:
-    from ..config import DeviceSpec
-
-
-@dataclass
-class Bench:
-    """A device under test with its claimed scheme and the reference to judge it by."""
-
-    spec: "DeviceSpec"
-    device: GuardedDevice
-    convention: Convention
-    reference: ReferenceModem
-    cache: dict = field(default_factory=dict)
-    #: ``progress(name, fraction, text)``: set by the command line for long runs; a no-op here
-    progress: Callable[[str, float, str], None] = field(default=lambda name, fraction, text: None)
-
-    @property
-    def k(self) -> int:
-        return self.convention.bits_per_symbol
-
-    @property
-    def sps(self) -> int:
-        return self.spec.scheme.samples_per_symbol
-
-    def transmit(self, bits: np.ndarray) -> np.ndarray:
-        """The device's modulator, or the reference's when the device has none."""
-        if self.device.has("modulate"):
-            return self.device.modulate(bits)
-        return self.reference.modulate(bits)
-
-    def receive(self, samples: np.ndarray, n_symbols: int | None = None) -> np.ndarray:
-        """The device's hard demodulator, or the reference's when the device has none.
-
-        Samples that came from the device's modulator are aligned first (see
-        :meth:`device_symbols`); ``n_symbols`` says how many symbols they carry.
-        """
-        if n_symbols is None:
-            n_symbols = self.device.bits_for(len(samples)) // self.k
-        if self.device.has("demodulate"):
-            return self.device.demodulate(samples, n_bits=n_symbols * self.k)
-        if self.device.has("modulate"):
-            return self.reference.slice_bits(self.device_symbols(samples, n_symbols))
-        return self.reference.demodulate(samples, n_symbols)
-
-    # -- waveforms --------------------------------------------------------------------------
-    def alignment(self) -> "AppliedAlignment | None":
-        """How the device's waveform lines up with the reference (measured once, cached).
-
-        None when the scheme allows no correction (one sample per symbol, no pulse) or the
-        device has no modulator. Raises AdapterError if the device fails on the probe.
-        """
-        if "alignment" not in self.cache:
-            self.cache["alignment"] = _measure_alignment(self)
-        return self.cache["alignment"]
-
-    def device_symbols(self, samples: np.ndarray, n_symbols: int) -> np.ndarray:
-        """Symbols from a device waveform: aligned (as allowed), matched-filtered, sampled."""
-        applied = self.alignment()
-        if applied is not None:
-            from ..dsp.align import apply_alignment
-
-            samples = apply_alignment(samples, applied.correction,
-                                      self.reference.waveform_length(n_symbols))
-        return self.reference.symbols(samples, n_symbols)
-
-    def sides(self) -> str:
-        tx = "device" if self.device.has("modulate") else "reference"
-        rx = "device" if self.device.has("demodulate") else "reference"
-        return f"{tx} modulate -> {rx} demodulate"
 
 
 class Oracle:
@@ -116,55 +43,3 @@ class Oracle:
 
     def run(self, bench: Bench, opts: dict, rng: np.random.Generator, seed: int) -> list[Verdict]:
         raise NotImplementedError
-
-
-#: symbols in the probe that measures the alignment
-ALIGNMENT_PROBE_SYMBOLS = 4096
-
-
-@dataclass(frozen=True)
-class AppliedAlignment:
-    """The measured alignment and the part of it that is applied to the device's waveform.
-
-    ``measured`` is the full estimate (``dsp.align.Alignment``); ``correction`` is what is
-    undone: the delay and frequency offset when allowed, the gain's magnitude always (mapping
-    allows a positive gain), and its phase reduced modulo the constellation's symmetry angle
-    when allowed — a rotation by a whole symmetry step (90 degrees for square QAM) is left in
-    place, for the mapping check to name as a rotation.
-    """
-
-    measured: object
-    correction: object
-    symmetry_deg: float
-    phase_deg: float
-    applied_phase_deg: float
-    allowed: dict
-
-
-def _measure_alignment(bench: Bench, allowed: dict | None = None):
-    """Measure the alignment; ``allowed`` overrides the device file's corrections (the
-    alignment check measures what a forbidden correction would have been)."""
-    from dataclasses import replace as _replace
-
-    from ..dsp.align import estimate_alignment
-    from ..schemes.geometry import rotational_symmetry_deg
-    from ..vectors.prbs import prbs
-
-    scheme = bench.spec.scheme
-    allowed = dict(scheme.alignment if allowed is None else allowed)
-    if not any(allowed.values()) or not bench.device.has("modulate"):
-        return None
-    n = ALIGNMENT_PROBE_SYMBOLS
-    bits = prbs("prbs15", n * bench.k)
-    raw = bench.device.modulate(bits)
-    ref = bench.reference.modulate(bits)
-    measured = estimate_alignment(raw, ref, estimate_frequency=allowed["frequency"])
-    sym = rotational_symmetry_deg(bench.convention.points)
-    phase = float(np.degrees(np.angle(measured.gain))) if measured.gain else 0.0
-    applied_phase = phase - sym * round(phase / sym) if allowed["phase"] else 0.0
-    gain = abs(measured.gain) * np.exp(1j * np.radians(applied_phase))
-    correction = _replace(measured, gain=complex(gain) if gain else 1.0,
-                          delay_samples=measured.delay_samples if allowed["delay"] else 0.0,
-                          freq_offset=measured.freq_offset if allowed["frequency"] else 0.0)
-    return AppliedAlignment(measured=measured, correction=correction, symmetry_deg=sym,
-                            phase_deg=phase, applied_phase_deg=applied_phase, allowed=allowed)

@@ -13,6 +13,7 @@ pass here is a sanity bound, not that requirement met.
 from __future__ import annotations
 
 import numpy as np
+from scipy import signal
 
 from ..dsp.evm import evm as evm_of, evm_limit
 from ..options import Opt
@@ -85,14 +86,7 @@ class EvmOracle(Oracle):
 
 def _eye_traces(bench, raw, n, traces=120):
     """In-phase matched-filter output around 120 symbol peaks, two symbols wide (eye diagram)."""
-    from scipy import signal
-
-    applied = bench.alignment()
-    x = raw
-    if applied is not None:
-        from ..dsp.align import apply_alignment
-
-        x = apply_alignment(raw, applied.correction, bench.reference.waveform_length(n))
+    x = bench.aligned_waveform(raw, n)
     pulse = bench.spec.scheme.pulse
     sps = bench.sps
     y = signal.oaconvolve(x, np.conj(pulse.taps[::-1]))

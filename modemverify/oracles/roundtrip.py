@@ -21,7 +21,8 @@ from ..vectors.coverage import de_bruijn_labels
 from ..vectors.prbs import prbs
 from ..vectors.strategies import bit_sequences
 from ..verdict import Verdict
-from .base import Bench, Oracle
+from ..bench import Bench
+from .base import Oracle
 
 
 def _bits_text(bits: np.ndarray, k: int) -> str:

@@ -7,7 +7,7 @@ import json
 import re
 from pathlib import Path
 
-from .. import __version__
+from .._version import __version__
 from ..verdict import OUTCOMES
 from .junit import write_atomic
 from .plots import PLOTTERS

@@ -12,7 +12,7 @@ from pathlib import Path
 
 from junit_xml import TestCase, TestSuite, to_xml_report_string
 
-from .. import __version__
+from .._version import __version__
 
 
 def suite_for(result) -> TestSuite:

@@ -11,6 +11,8 @@ from pathlib import Path
 
 import numpy as np
 
+from ..schemes.theory import ber as theory_ber
+
 
 @dataclass(frozen=True)
 class Figure:
@@ -85,8 +87,6 @@ def constellation_plot(result, folder: Path, stem: str) -> list[Figure]:
 
 def waterfall_plot(result, folder: Path, stem: str) -> list[Figure]:
     """Measured BER with interval bars over the theory curve and the margin (limit) curve."""
-    from ..schemes.theory import ber as theory_ber
-
     pts = [v for v in result.verdicts if v.name.startswith("ber.") and "ebn0_db" in v.details]
     if not pts:
         return []

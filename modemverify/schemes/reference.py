@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..dsp.pulses import PulseShape
 from .conventions import Convention
 from .labels import labels_to_bits
 
@@ -34,8 +35,6 @@ class ReferenceModem:
     """
 
     def __init__(self, convention: Convention, samples_per_symbol: int = 1, pulse=None):
-        from ..dsp.pulses import PulseShape
-
         self.convention = convention
         self.points = np.asarray(convention.points, dtype=np.complex128)
         self.k = convention.bits_per_symbol

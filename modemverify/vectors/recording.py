@@ -44,7 +44,7 @@ from pathlib import Path
 import numpy as np
 import yaml
 
-from .. import __version__
+from .._version import __version__
 from ..adapters._wire import SAMPLE_FORMATS, decode_samples, encode_samples
 from ..errors import ConfigError
 from ..schemes.conventions import MODULATIONS, get_convention

@@ -1,0 +1,154 @@
+"""The bench: a device under test, its claimed scheme, and the reference it is judged by.
+
+:func:`open_bench` opens a validated spec's device behind the guard; the :class:`Bench` caches
+what several checks share (the measured alignment) and offers the one way from a device
+waveform to symbols (:meth:`Bench.device_symbols`), so every oracle sees waveforms alike.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+from typing import Callable
+
+import numpy as np
+
+from .adapters.base import GuardedDevice
+from .adapters.isolated import open_adapter
+from .dsp.align import Alignment, apply_alignment, estimate_alignment
+from .schemes.conventions import Convention
+from .schemes.geometry import rotational_symmetry_deg
+from .schemes.reference import ReferenceModem
+from .spec import DeviceSpec
+from .vectors.prbs import prbs
+
+
+@dataclass
+class Bench:
+    """A device under test with its claimed scheme and the reference to judge it by."""
+
+    spec: DeviceSpec
+    device: GuardedDevice
+    convention: Convention
+    reference: ReferenceModem
+    cache: dict = field(default_factory=dict)
+    #: ``progress(name, fraction, text)``: set by the command line for long runs; a no-op here
+    progress: Callable[[str, float, str], None] = field(default=lambda name, fraction, text: None)
+
+    @property
+    def k(self) -> int:
+        return self.convention.bits_per_symbol
+
+    @property
+    def sps(self) -> int:
+        return self.spec.scheme.samples_per_symbol
+
+    def transmit(self, bits: np.ndarray) -> np.ndarray:
+        """The device's modulator, or the reference's when the device has none."""
+        if self.device.has("modulate"):
+            return self.device.modulate(bits)
+        return self.reference.modulate(bits)
+
+    def receive(self, samples: np.ndarray, n_symbols: int | None = None) -> np.ndarray:
+        """The device's hard demodulator, or the reference's when the device has none.
+
+        Samples that came from the device's modulator are aligned first (see
+        :meth:`device_symbols`); ``n_symbols`` says how many symbols they carry.
+        """
+        if n_symbols is None:
+            n_symbols = self.device.bits_for(len(samples)) // self.k
+        if self.device.has("demodulate"):
+            return self.device.demodulate(samples, n_bits=n_symbols * self.k)
+        if self.device.has("modulate"):
+            return self.reference.slice_bits(self.device_symbols(samples, n_symbols))
+        return self.reference.demodulate(samples, n_symbols)
+
+    # -- waveforms --------------------------------------------------------------------------
+    def alignment(self) -> AppliedAlignment | None:
+        """How the device's waveform lines up with the reference (measured once, cached).
+
+        None when the scheme allows no correction (one sample per symbol, no pulse) or the
+        device has no modulator. Raises AdapterError if the device fails on the probe.
+        """
+        if "alignment" not in self.cache:
+            self.cache["alignment"] = measure_alignment(self)
+        return self.cache["alignment"]
+
+    def aligned_waveform(self, samples: np.ndarray, n_symbols: int) -> np.ndarray:
+        """A device waveform of ``n_symbols`` lined up with the reference's (as allowed)."""
+        applied = self.alignment()
+        if applied is None:
+            return samples
+        return apply_alignment(samples, applied.correction,
+                               self.reference.waveform_length(n_symbols))
+
+    def device_symbols(self, samples: np.ndarray, n_symbols: int) -> np.ndarray:
+        """Symbols from a device waveform: aligned (as allowed), matched-filtered, sampled."""
+        return self.reference.symbols(self.aligned_waveform(samples, n_symbols), n_symbols)
+
+    def sides(self) -> str:
+        tx = "device" if self.device.has("modulate") else "reference"
+        rx = "device" if self.device.has("demodulate") else "reference"
+        return f"{tx} modulate -> {rx} demodulate"
+
+
+#: symbols in the probe that measures the alignment
+ALIGNMENT_PROBE_SYMBOLS = 4096
+
+
+@dataclass(frozen=True)
+class AppliedAlignment:
+    """The measured alignment and the part of it that is applied to the device's waveform.
+
+    ``measured`` is the full estimate (``dsp.align.Alignment``); ``correction`` is what is
+    undone: the delay and frequency offset when allowed, the gain's magnitude always (mapping
+    allows a positive gain), and its phase reduced modulo the constellation's symmetry angle
+    when allowed — a rotation by a whole symmetry step (90 degrees for square QAM) is left in
+    place, for the mapping check to name as a rotation.
+    """
+
+    measured: Alignment
+    correction: Alignment
+    symmetry_deg: float
+    phase_deg: float
+    applied_phase_deg: float
+    allowed: dict
+
+
+def measure_alignment(bench: Bench, allowed: dict | None = None) -> AppliedAlignment | None:
+    """Measure the alignment; ``allowed`` overrides the device file's corrections (the
+    alignment check measures what a forbidden correction would have been)."""
+    scheme = bench.spec.scheme
+    allowed = dict(scheme.alignment if allowed is None else allowed)
+    if not any(allowed.values()) or not bench.device.has("modulate"):
+        return None
+    n = ALIGNMENT_PROBE_SYMBOLS
+    bits = prbs("prbs15", n * bench.k)
+    raw = bench.device.modulate(bits)
+    ref = bench.reference.modulate(bits)
+    measured = estimate_alignment(raw, ref, estimate_frequency=allowed["frequency"])
+    sym = rotational_symmetry_deg(bench.convention.points)
+    phase = float(np.degrees(np.angle(measured.gain))) if measured.gain else 0.0
+    applied_phase = phase - sym * round(phase / sym) if allowed["phase"] else 0.0
+    gain = abs(measured.gain) * np.exp(1j * np.radians(applied_phase))
+    correction = replace(measured, gain=complex(gain) if gain else 1.0,
+                          delay_samples=measured.delay_samples if allowed["delay"] else 0.0,
+                          freq_offset=measured.freq_offset if allowed["frequency"] else 0.0)
+    return AppliedAlignment(measured=measured, correction=correction, symmetry_deg=sym,
+                            phase_deg=phase, applied_phase_deg=applied_phase, allowed=allowed)
+
+
+def open_bench(spec: DeviceSpec, adapter=None) -> Bench:
+    """Open the device of a validated spec (or use ``adapter``, already open).
+
+    Raises ConfigError or AdapterError.
+    """
+    if adapter is None:
+        # ``isolate: true`` runs the adapter in a worker process (adapters/isolated.py)
+        adapter = open_adapter(spec)
+    scheme = spec.scheme
+    device = GuardedDevice(adapter, scheme.bits_per_symbol, scheme.samples_per_symbol,
+                           name=spec.name, tail_samples=scheme.tail_samples,
+                           input_tail=scheme.pulse.tail)
+    conv = scheme.reference
+    return Bench(spec=spec, device=device, convention=conv,
+                 reference=ReferenceModem(conv, scheme.samples_per_symbol, scheme.pulse))

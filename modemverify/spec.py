@@ -1,0 +1,83 @@
+"""The validated device file as data: :class:`DeviceSpec` and its :class:`SchemeSpec`.
+
+``config.py`` builds these from a device file; adapters, the bench and the oracles read them.
+They hold only validated values, so nothing below ``config`` ever re-checks a key.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from .dsp.pulses import PulseShape
+from .schemes.conventions import MODULATIONS, Convention, get_convention
+
+#: default of ``timeout_s``
+DEFAULT_TIMEOUT_S = 10.0
+
+
+@dataclass
+class SchemeSpec:
+    modulation: str
+    convention: str
+    samples_per_symbol: int = 1
+    llr_positive_bit: int = 0
+    #: the declared pulse (rectangular by default)
+    pulse: PulseShape | None = None
+    #: samples beyond n x sps in the device's modulate output; None = any constant
+    tail_samples: int | None = 0
+    #: corrections the harness may apply: {"delay": bool, "phase": bool, "frequency": bool}
+    alignment: dict = field(default_factory=lambda: {"delay": False, "phase": False,
+                                                     "frequency": False})
+
+    def __post_init__(self):
+        if self.pulse is None:
+            self.pulse = PulseShape("rectangular", self.samples_per_symbol)
+
+    @property
+    def shaped(self) -> bool:
+        """True when the device's output is a waveform (a pulse, or several samples/symbol)."""
+        return self.samples_per_symbol > 1 or self.pulse.shape != "rectangular"
+
+    @property
+    def bits_per_symbol(self) -> int:
+        return MODULATIONS[self.modulation]
+
+    @property
+    def reference(self) -> Convention:
+        return get_convention(self.convention, self.modulation)
+
+    def describe(self) -> str:
+        pulse = ""
+        if self.pulse.shape != "rectangular":
+            p = self.pulse
+            extra = (f" rolloff {p.rolloff:g}" if p.rolloff is not None else
+                     f" BT {p.bt:g}" if p.bt is not None else "")
+            pulse = f", {p.shape}{extra} span {p.span}"
+        return (f"{self.modulation} ({self.convention}), {self.samples_per_symbol} "
+                f"sample{'s' if self.samples_per_symbol > 1 else ''}/symbol{pulse}")
+
+
+@dataclass
+class DeviceSpec:
+    """A validated device file."""
+
+    name: str
+    adapter: str
+    scheme: SchemeSpec
+    target: str | None = None
+    params: dict[str, Any] = field(default_factory=dict)
+    checks: dict[str, Any] = field(default_factory=dict)
+    fail_on_inconclusive: bool = False
+    isolate: bool = False
+    timeout_s: float = DEFAULT_TIMEOUT_S
+    description: str = ""
+    file: str | None = None
+    base_dir: Path = field(default_factory=Path.cwd)
+    extra: dict[str, Any] = field(default_factory=dict)
+
+    def resolve(self, path: str) -> Path:
+        """A path from the device file, relative to the file's folder."""
+        p = Path(path).expanduser()
+        return p if p.is_absolute() else (self.base_dir / p)
