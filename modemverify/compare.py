@@ -22,14 +22,14 @@ import time
 import numpy as np
 
 from .bench import open_bench
-from .config import parse_device
 from .dsp.align import apply_alignment, estimate_alignment
 from .dsp.evm import evm, evm_limit
 from .dsp.psd import welch_psd
 from .errors import AdapterError, ConfigError
 from .oracles._table import measure_table
-from .runner import RunResult
+from .runner import RunResult, Subject, guarded
 from .spec import DeviceSpec
+from .vectors.bits import random_bits
 from .schemes.labels import label_string
 from .schemes.transforms import describe_reassignment, differing_labels, relate
 from .verdict import Verdict
@@ -46,7 +46,10 @@ def compare(a: DeviceSpec, b: DeviceSpec, *, seed: int = 1, evm_limit_percent=No
         raise ConfigError(f"cannot compare {a.scheme.modulation} ({a.name}) with "
                           f"{b.scheme.modulation} ({b.name})", key="scheme.modulation")
     t0 = time.perf_counter()
-    spec = _pair_spec(a, b)
+    subject = Subject(name=f"{b.name} vs {a.name}", adapter=f"{b.adapter} vs {a.adapter}",
+                      scheme=a.scheme,
+                      description=f"B = {b.name} ({b.file or b.adapter}) judged against "
+                                  f"A = {a.name} ({a.file or a.adapter})")
     verdicts: list[Verdict] = []
     benches = []
     for s in (a, b):
@@ -57,37 +60,19 @@ def compare(a: DeviceSpec, b: DeviceSpec, *, seed: int = 1, evm_limit_percent=No
                                     f"{exc}", seed=seed))
             for bb in benches:
                 bb.device.close()
-            return RunResult(spec, verdicts, seed, time.perf_counter() - t0)
+            return RunResult(subject, verdicts, seed, time.perf_counter() - t0)
         benches.append(bench)
     ba, bb = benches
     try:
         for name, fn in (("compare.mapping", _mapping), ("compare.waveforms", _waveforms)):
-            t = time.perf_counter()
-            try:
-                out = fn(ba, bb, seed, evm_limit_percent=evm_limit_percent,
-                         sample_error_percent=sample_error_percent,
-                         spectrum_tolerance_db=spectrum_tolerance_db)
-            except AdapterError as exc:
-                out = [Verdict(name, "error", f"a device failed: {exc}", seed=seed)]
-            took = time.perf_counter() - t
-            verdicts.extend(v.with_(duration_s=took / len(out)) for v in out)
+            verdicts.extend(guarded(name, seed, lambda fn=fn: fn(
+                ba, bb, seed, evm_limit_percent=evm_limit_percent,
+                sample_error_percent=sample_error_percent,
+                spectrum_tolerance_db=spectrum_tolerance_db), device_failed="a device failed"))
     finally:
         ba.device.close()
         bb.device.close()
-    return RunResult(spec, verdicts, seed, time.perf_counter() - t0)
-
-
-def _pair_spec(a, b) -> DeviceSpec:
-    spec = parse_device({"name": f"{b.name} vs {a.name}", "adapter": "reference",
-                         "description": f"B = {b.name} ({b.file or b.adapter}) judged against "
-                                        f"A = {a.name} ({a.file or a.adapter})",
-                         "scheme": {"modulation": a.scheme.modulation,
-                                    "convention": a.scheme.convention,
-                                    "samples_per_symbol": a.scheme.samples_per_symbol}})
-    spec.scheme = a.scheme
-    spec.file = None
-    spec.adapter = f"{b.adapter} vs {a.adapter}"
-    return spec
+    return RunResult(subject, verdicts, seed, time.perf_counter() - t0)
 
 
 def _mapping(ba, bb, seed, **_):
@@ -121,7 +106,7 @@ def _waveforms(ba, bb, seed, *, evm_limit_percent, sample_error_percent,
     k = ba.k
     n = DEFAULTS["symbols"]
     rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(0xC0,)))
-    bits = np.unpackbits(np.frombuffer(rng.bytes(n * k // 8 + 1), dtype=np.uint8))[:n * k]
+    bits = random_bits(rng, n * k)
     wa, wb = ba.device.modulate(bits), bb.device.modulate(bits)
     if ba.sps != bb.sps:
         out.append(Verdict("compare.alignment", "fail",

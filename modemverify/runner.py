@@ -21,17 +21,35 @@ from .bench import Bench, open_bench
 from .config import load_device, parse_device
 from .errors import AdapterError
 from .oracles import ORACLES
-from .spec import DeviceSpec
-from .verdict import GATING, Verdict
+from .spec import DeviceSpec, SchemeSpec
+from .verdict import OUTCOMES, Verdict, gates
 
 DEFAULT_SEED = 1
 
 
+@dataclass(frozen=True)
+class Subject:
+    """What a run judged: one device (from its spec), or B against A for ``compare``."""
+
+    name: str
+    adapter: str
+    scheme: SchemeSpec
+    file: str | None = None
+    description: str = ""
+    fail_on_inconclusive: bool = False
+
+    @classmethod
+    def of(cls, spec: DeviceSpec) -> "Subject":
+        return cls(name=spec.name, adapter=spec.adapter, scheme=spec.scheme, file=spec.file,
+                   description=spec.description,
+                   fail_on_inconclusive=spec.fail_on_inconclusive)
+
+
 @dataclass
 class RunResult:
-    """Everything one device's run produced."""
+    """Everything one run produced: the subject, its verdicts, the seed and the timings."""
 
-    spec: DeviceSpec
+    subject: Subject
     verdicts: list[Verdict]
     seed: int
     duration_s: float = 0.0
@@ -39,48 +57,68 @@ class RunResult:
     version: str = __version__
     notes: list[str] = field(default_factory=list)
 
+    def __repr__(self) -> str:
+        return (f"RunResult({self.subject.name!r}, {'OK' if self.ok else 'NOT OK'}: "
+                f"{self.tally() or 'no verdicts'}, seed={self.seed})")
+
+    def gates(self, verdict: Verdict) -> bool:
+        """True when ``verdict`` fails this run (see :func:`modemverify.verdict.gates`)."""
+        return gates(verdict.outcome, self.subject.fail_on_inconclusive)
+
     @property
     def gating(self) -> list[Verdict]:
-        bad = set(GATING) | ({"inconclusive"} if self.spec.fail_on_inconclusive else set())
-        return [v for v in self.verdicts if v.outcome in bad]
+        return [v for v in self.verdicts if self.gates(v)]
 
     @property
     def ok(self) -> bool:
         return not self.gating
 
     def counts(self) -> dict[str, int]:
-        out: dict[str, int] = {}
-        for v in self.verdicts:
-            out[v.outcome] = out.get(v.outcome, 0) + 1
-        return out
+        """{outcome: number of verdicts}, in the order of :data:`~modemverify.verdict.OUTCOMES`,
+        outcomes with no verdict left out."""
+        found = [v.outcome for v in self.verdicts]
+        return {o: found.count(o) for o in OUTCOMES if o in found}
+
+    def tally(self) -> str:
+        """``"2 fail, 9 pass, 4 skipped"``."""
+        return ", ".join(f"{n} {o}" for o, n in self.counts().items())
 
 
 def check_seed(seed: int, name: str) -> np.random.SeedSequence:
     return np.random.SeedSequence(seed, spawn_key=(zlib.crc32(name.encode()),))
 
 
-def run_oracle(oracle, bench: Bench, opts: dict, seed: int) -> list[Verdict]:
-    """Run one oracle; a misbehaving device or a harness bug becomes an error verdict."""
-    ss = check_seed(seed, oracle.name)
-    rng = np.random.default_rng(ss)
+def guarded(name: str, seed: int, judge, *, device_failed: str = "the device failed"
+            ) -> list[Verdict]:
+    """``judge()``'s verdicts, timed; a misbehaving device (AdapterError) or a harness bug
+    becomes one ``error`` verdict named ``name``, so one broken check never costs the others."""
     t0 = time.perf_counter()
     try:
-        why_not = oracle.skip_reason(bench)
-        if why_not:
-            verdicts = [Verdict(oracle.name, "skipped", why_not, seed=seed)]
-        else:
-            verdicts = oracle.run(bench, opts, rng, seed)
+        verdicts = judge()
     except AdapterError as exc:
-        verdicts = [Verdict(oracle.name, "error", f"the device failed: {exc}", seed=seed,
+        verdicts = [Verdict(name, "error", f"{device_failed}: {exc}", seed=seed,
                             details={"call": exc.call, "input": exc.input_summary,
                                      "stderr": exc.stderr})]
     except Exception as exc:  # a bug in modemverify itself: report it, keep the other verdicts
-        verdicts = [Verdict(oracle.name, "error",
-                            f"internal error in the {oracle.name} check: "
+        verdicts = [Verdict(name, "error",
+                            f"internal error in the {name} check: "
                             f"{type(exc).__name__}: {exc}", seed=seed,
                             details={"traceback": traceback.format_exc(limit=6)})]
     took = time.perf_counter() - t0
     return [v.with_(duration_s=took / len(verdicts)) for v in verdicts]
+
+
+def run_oracle(oracle, bench: Bench, opts: dict, seed: int) -> list[Verdict]:
+    """Run one oracle; a misbehaving device or a harness bug becomes an error verdict."""
+    rng = np.random.default_rng(check_seed(seed, oracle.name))
+
+    def judge():
+        why_not = oracle.skip_reason(bench)
+        if why_not:
+            return [Verdict(oracle.name, "skipped", why_not, seed=seed)]
+        return oracle.run(bench, opts, rng, seed)
+
+    return guarded(oracle.name, seed, judge)
 
 
 def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
@@ -134,7 +172,7 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
     except AdapterError as exc:
         emit([Verdict("device.open", "error", f"the device could not be opened: {exc}",
                       seed=seed)])
-        return RunResult(spec, verdicts, seed, time.perf_counter() - t0)
+        return RunResult(Subject.of(spec), verdicts, seed, time.perf_counter() - t0)
     try:
         for name, oracle in ORACLES.items():
             opts = spec.checks.get(name)
@@ -143,7 +181,7 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
             emit(run_oracle(oracle, bench, opts, seed))
     finally:
         bench.device.close()
-    return RunResult(spec, verdicts, seed, time.perf_counter() - t0,
+    return RunResult(Subject.of(spec), verdicts, seed, time.perf_counter() - t0,
                      device_time_s=bench.device.device_time_s)
 
 

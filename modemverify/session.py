@@ -14,7 +14,7 @@ from .report.console import render_run, render_totals
 from .report.html import write_report
 from .report.junit import write_junit
 from .report.progress import ProgressLine
-from .runner import RunResult, check
+from .runner import RunResult, Subject, check
 
 EXIT_OK, EXIT_FAIL, EXIT_USAGE, EXIT_INTERRUPTED = 0, 1, 2, 130
 
@@ -48,7 +48,7 @@ def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=No
                 result = check(spec, seed=seed, only=only, on_verdict=on_verdict, progress=bar)
             except KeyboardInterrupt:
                 interrupted = True
-                result = RunResult(spec, partial, seed)
+                result = RunResult(Subject.of(spec), partial, seed)
                 result.notes.append("run interrupted; verdicts after this point are missing")
                 results.append(result)
                 break
@@ -64,7 +64,7 @@ def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=No
             write_report(results, report)
     if interrupted:
         last = results[-1]
-        print(f"INTERRUPTED in {last.spec.name} after {len(last.verdicts)} verdicts: the totals "
+        print(f"INTERRUPTED in {last.subject.name} after {len(last.verdicts)} verdicts: the totals "
               f"below cover only what finished", file=stream)
     print(render_totals(results) + (" (incomplete)" if interrupted else ""), file=stream)
     if junit:

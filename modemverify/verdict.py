@@ -17,6 +17,19 @@ OUTCOMES = ("fail", "error", "inconclusive", "pass", "skipped")
 GATING = frozenset({"fail", "error"})
 
 
+def gates(outcome: str, fail_on_inconclusive: bool = False) -> bool:
+    """True when a verdict with this outcome fails the run: the one gating policy, read by
+    :class:`~modemverify.runner.RunResult`, the console and JUnit."""
+    return outcome in GATING or (fail_on_inconclusive and outcome == "inconclusive")
+
+
+def ranked(verdicts) -> list["Verdict"]:
+    """Verdicts in the order a summary lists them: by outcome (:data:`OUTCOMES`), then as run."""
+    order = {o: i for i, o in enumerate(OUTCOMES)}
+    return [v for _, v in sorted(enumerate(verdicts), key=lambda iv: (order[iv[1].outcome],
+                                                                       iv[0]))]
+
+
 @dataclass(frozen=True)
 class Verdict:
     """One judged property.
@@ -66,6 +79,10 @@ class Verdict:
     @property
     def passed(self) -> bool:
         return self.outcome == "pass"
+
+    def __repr__(self) -> str:
+        stat = "" if self.statistic is None else f", statistic={self.statistic!r}"
+        return f"Verdict({self.name!r}, {self.outcome!r}{stat})"
 
     def with_(self, **changes) -> "Verdict":
         return replace(self, **changes)

@@ -18,6 +18,7 @@ from scipy import signal
 from ..dsp.evm import evm as evm_of, evm_limit
 from ..options import Opt
 from ..schemes.labels import bits_to_labels, label_string
+from ..vectors.bits import random_bits
 from ..verdict import Verdict
 from .base import Oracle
 
@@ -45,7 +46,7 @@ class EvmOracle(Oracle):
                             f"checks.evm.limit_percent", seed=seed)]
         k = bench.k
         n = opts["symbols"]
-        bits = np.unpackbits(np.frombuffer(rng.bytes(-(-n * k // 8)), dtype=np.uint8))[:n * k]
+        bits = random_bits(rng, n * k)
         raw = bench.device.modulate(bits)
         measured = bench.device_symbols(raw, n)
         labels = bits_to_labels(bits, k)

@@ -23,6 +23,7 @@ import numpy as np
 from ..dsp.psd import aclr, mask_check, occupied_bandwidth, welch_psd, x_db_bandwidth
 from ..errors import ConfigError
 from ..options import Opt
+from ..vectors.bits import random_bits
 from ..verdict import Verdict
 from .base import Oracle
 
@@ -71,7 +72,7 @@ class SpectrumOracle(Oracle):
     def run(self, bench, opts, rng, seed):
         k, sps = bench.k, bench.sps
         n = opts["symbols"]
-        bits = np.unpackbits(np.frombuffer(rng.bytes(-(-n * k // 8)), dtype=np.uint8))[:n * k]
+        bits = random_bits(rng, n * k)
         x = bench.device.modulate(bits)
         try:
             f, psd = welch_psd(x, sps)

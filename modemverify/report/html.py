@@ -8,7 +8,7 @@ import re
 from pathlib import Path
 
 from .._version import __version__
-from ..verdict import OUTCOMES
+from ..verdict import ranked
 from .junit import write_atomic
 from .plots import PLOTTERS
 
@@ -32,9 +32,8 @@ def _slug(text: str) -> str:
 
 
 def _verdict_rows(result) -> str:
-    order = {o: i for i, o in enumerate(OUTCOMES)}
     rows = []
-    for _, v in sorted(enumerate(result.verdicts), key=lambda iv: (order[iv[1].outcome], iv[0])):
+    for v in ranked(result.verdicts):
         stat = ""
         if v.statistic is not None:
             stat = f"{v.statistic:.4g} {html.escape(v.unit)}"
@@ -55,14 +54,14 @@ def _mapping_table(result) -> str:
                    None)
     if mapping is None:
         return ""
-    ref = result.spec.scheme.reference.points
+    ref = result.subject.scheme.reference.points
     bad = set(mapping.details.get("differing_labels", []))
     rows = []
     for i, (lab, (re_, im_)) in enumerate(mapping.details["table"].items()):
         cls = " class='fail'" if lab in bad else ""
         rows.append(f"<tr{cls}><td><code>{lab}</code></td><td>{re_:+.5f}</td><td>{im_:+.5f}</td>"
                     f"<td>{ref[i].real:+.5f}</td><td>{ref[i].imag:+.5f}</td></tr>")
-    conv = result.spec.scheme.convention
+    conv = result.subject.scheme.convention
     return ("<details><summary>Mapping table (label bits in the order fed to modulate)"
             "</summary><table><tr><th>label</th><th>device I</th><th>device Q</th>"
             f"<th>{conv} I</th><th>{conv} Q</th></tr>" + "".join(rows) + "</table></details>")
@@ -76,7 +75,7 @@ def write_report(results, folder: str | Path, *, title: str = "modemverify repor
     record = []
     used = set()
     for result in results:
-        stem = _slug(result.spec.name)
+        stem = _slug(result.subject.name)
         while stem in used:
             stem += "_"
         used.add(stem)
@@ -91,23 +90,22 @@ def write_report(results, folder: str | Path, *, title: str = "modemverify repor
             f"<figure><img src='{html.escape(f.file)}' alt='{html.escape(f.title)}'>"
             f"<figcaption><b>{html.escape(f.title)}.</b> {html.escape(f.caption)}</figcaption>"
             f"</figure>" for f in figures if f)
-        counts = result.counts()
         status = ("<span class='ok'>OK</span>" if result.ok
                   else "<span class='notok'>NOT OK</span>")
-        spec = result.spec
+        subject = result.subject
         notes = "".join(f"<p><i>{html.escape(n)}</i></p>" for n in result.notes)
         sections.append(
-            f"<h2 id='{stem}'>{html.escape(spec.name)} — {status}</h2>"
-            f"<p>{html.escape(spec.description)}</p>"
-            f"<p>adapter <code>{html.escape(spec.adapter)}</code>, "
-            f"{html.escape(spec.scheme.describe())}, seed <code>{result.seed}</code>; "
-            + ", ".join(f"{counts[o]} {o}" for o in OUTCOMES if counts.get(o))
-            + (f"; rerun <code>modemverify check {html.escape(spec.file)} --seed {result.seed}"
-               f"</code>" if spec.file else "") + "</p>"
+            f"<h2 id='{stem}'>{html.escape(subject.name)} — {status}</h2>"
+            f"<p>{html.escape(subject.description)}</p>"
+            f"<p>adapter <code>{html.escape(subject.adapter)}</code>, "
+            f"{html.escape(subject.scheme.describe())}, seed <code>{result.seed}</code>; "
+            + result.tally()
+            + (f"; rerun <code>modemverify check {html.escape(subject.file)} --seed {result.seed}"
+               f"</code>" if subject.file else "") + "</p>"
             + _verdict_rows(result) + figs + _mapping_table(result) + notes)
-        record.append({"device": spec.name, "file": spec.file, "seed": result.seed,
+        record.append({"device": subject.name, "file": subject.file, "seed": result.seed,
                        "ok": result.ok, "verdicts": [v.to_json() for v in result.verdicts]})
-    toc = "".join(f"<li><a href='#{_slug(r.spec.name)}'>{html.escape(r.spec.name)}</a> — "
+    toc = "".join(f"<li><a href='#{_slug(r.subject.name)}'>{html.escape(r.subject.name)}</a> — "
                   f"{'OK' if r.ok else 'NOT OK'}</li>" for r in results)
     page = (f"<!doctype html><html><head><meta charset='utf-8'><title>{html.escape(title)}"
             f"</title><style>{CSS}</style></head><body><h1>{html.escape(title)}</h1>"

@@ -16,17 +16,17 @@ from .._version import __version__
 
 
 def suite_for(result) -> TestSuite:
-    spec = result.spec
+    subject = result.subject
     cases = []
     for v in result.verdicts:
-        case = TestCase(v.name, classname=f"modemverify.{spec.name}", elapsed_sec=v.duration_s,
+        case = TestCase(v.name, classname=f"modemverify.{subject.name}", elapsed_sec=v.duration_s,
                         stdout=v.render())
         if v.outcome == "fail":
             case.add_failure_info(message=v.reason, output=v.render())
         elif v.outcome == "error":
             case.add_error_info(message=v.reason, output=v.render())
         elif v.outcome == "inconclusive":
-            if spec.fail_on_inconclusive:
+            if result.gates(v):
                 case.add_failure_info(message="inconclusive: " + v.reason, output=v.render())
             else:
                 case.add_skipped_info(message="inconclusive: " + v.reason, output=v.render())
@@ -34,12 +34,12 @@ def suite_for(result) -> TestSuite:
             case.add_skipped_info(message=v.reason)
         cases.append(case)
     props = {"modemverify.version": __version__, "seed": str(result.seed),
-             "adapter": spec.adapter, "modulation": spec.scheme.modulation,
-             "convention": spec.scheme.convention,
-             "samples_per_symbol": str(spec.scheme.samples_per_symbol)}
-    if spec.file:
-        props["device_file"] = spec.file
-    return TestSuite(spec.name, cases, properties=props)
+             "adapter": subject.adapter, "modulation": subject.scheme.modulation,
+             "convention": subject.scheme.convention,
+             "samples_per_symbol": str(subject.scheme.samples_per_symbol)}
+    if subject.file:
+        props["device_file"] = subject.file
+    return TestSuite(subject.name, cases, properties=props)
 
 
 def junit_xml(results) -> str:

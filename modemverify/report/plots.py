@@ -44,7 +44,7 @@ def constellation_plot(result, folder: Path, stem: str) -> list[Figure]:
     if mapping is None:
         return []
     plt = _pyplot()
-    conv = result.spec.scheme.reference
+    conv = result.subject.scheme.reference
     table = mapping.details["table"]
     labels = list(table)
     dev = np.array([complex(*table[l]) for l in labels])
@@ -76,7 +76,7 @@ def constellation_plot(result, folder: Path, stem: str) -> list[Figure]:
     ax.set_aspect("equal")
     ax.set_xlabel("I")
     ax.set_ylabel("Q")
-    ax.set_title(f"{result.spec.name}: {mapping.outcome.upper()} mapping")
+    ax.set_title(f"{result.subject.name}: {mapping.outcome.upper()} mapping")
     ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.09), ncol=2, fontsize=8)
     name = _save(plt, fig, folder, f"{stem}-constellation.png")
     return [Figure("Constellation", name,
@@ -91,7 +91,7 @@ def waterfall_plot(result, folder: Path, stem: str) -> list[Figure]:
     if not pts:
         return []
     plt = _pyplot()
-    mod = result.spec.scheme.modulation
+    mod = result.subject.scheme.modulation
     x = np.array([v.details["ebn0_db"] for v in pts])
     margin = pts[0].details["margin_db"]
     grid = np.linspace(x.min() - 2, x.max() + 1.5, 200)
@@ -115,7 +115,7 @@ def waterfall_plot(result, folder: Path, stem: str) -> list[Figure]:
     ax.set_xlabel("Eb/N0 (dB)")
     ax.set_ylabel("bit error rate")
     ax.grid(True, which="both", alpha=0.3)
-    ax.set_title(f"{result.spec.name}: BER vs theory")
+    ax.set_title(f"{result.subject.name}: BER vs theory")
     ax.legend(fontsize=8, loc="lower left")
     name = _save(plt, fig, folder, f"{stem}-ber.png")
     return [Figure("BER waterfall", name,
@@ -153,7 +153,7 @@ def psd_plot(result, folder: Path, stem: str) -> list[Figure]:
     ax.set_ylabel("PSD (dB relative to peak)")
     ax.set_ylim(max(db.min(), -100), 5)
     ax.grid(True, alpha=0.3)
-    ax.set_title(f"{result.spec.name}: spectrum ({v.outcome.upper()} occupied bandwidth)")
+    ax.set_title(f"{result.subject.name}: spectrum ({v.outcome.upper()} occupied bandwidth)")
     ax.legend(fontsize=8, loc="lower center")
     name = _save(plt, fig, folder, f"{stem}-psd.png")
     return [Figure("Spectrum", name, "Welch PSD of the device's output with the measured 99 % "
@@ -176,7 +176,7 @@ def eye_plot(result, folder: Path, stem: str) -> list[Figure]:
     ax.axvline(0, color="0.5", lw=0.8, ls=":")
     ax.set_xlabel("time (symbols, 0 = sampling instant)")
     ax.set_ylabel("I after the matched filter")
-    ax.set_title(f"{result.spec.name}: eye diagram")
+    ax.set_title(f"{result.subject.name}: eye diagram")
     ax.grid(True, alpha=0.3)
     name = _save(plt, fig, folder, f"{stem}-eye.png")
     return [Figure("Eye diagram", name, "In-phase component after alignment and the matched "
