@@ -30,8 +30,7 @@ from .oracles._table import measure_table
 from .runner import RunResult, Subject, guarded
 from .spec import DeviceSpec
 from .vectors.bits import random_bits
-from .schemes.labels import label_string
-from .schemes.transforms import describe_reassignment, differing_labels, relate
+from .schemes.transforms import differing_labels, explain_difference
 from .verdict import Verdict
 
 DEFAULTS = {"symbols": 1 << 14, "sample_error_percent": None, "evm_limit_percent": None,
@@ -85,14 +84,8 @@ def _mapping(ba, bb, seed, **_):
         return [Verdict("compare.mapping", "pass",
                         f"the label tables agree (B = {gain:.4g} x A)", statistic=0.0,
                         seed=seed)]
-    rels = relate(ta.points, tb.points)
-    if rels and rels[0].permutation is not None:
-        reason = f"B's table is A's with {rels[0].describe()}"
-    elif rels:
-        reason = f"B's table differs from A's: {describe_reassignment(rels[0].assignment, k)}"
-    else:
-        reason = (f"{len(bad)} labels of B are not on A's constellation: "
-                  f"{', '.join(label_string(l, k) for l in bad[:8])}")
+    reason, _ = explain_difference(ta.points, tb.points, bad, gain, k, name="A",
+                                   subject="B's table")
     return [Verdict("compare.mapping", "fail", reason, statistic=float(len(bad)),
                     unit="labels differ", seed=seed)]
 

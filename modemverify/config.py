@@ -13,7 +13,7 @@ from typing import Any
 import yaml
 
 from .adapters.registry import get_adapter_class
-from .dsp.pulses import PulseShape
+from .dsp.pulses import PULSE_SHAPES, PulseShape
 from .errors import ConfigError, UnknownNameError
 from .oracles import validate_checks
 from .options import Opt, validate_options
@@ -50,7 +50,7 @@ SCHEME_OPTIONS: dict[str, Opt] = {
 
 PULSE_OPTIONS: dict[str, Opt] = {
     "shape": Opt("choice", "rectangular", "pulse shape",
-                 choices=("rrc", "rc", "rectangular", "gaussian")),
+                 choices=PULSE_SHAPES),
     "rolloff": Opt("number", None, "roll-off factor (rrc, rc)", minimum=0, maximum=1),
     "span": Opt("int", None, "filter span in symbols (rrc, rc, gaussian)", minimum=1),
     "bt": Opt("number", None, "bandwidth-time product (gaussian)", minimum=0,
@@ -178,9 +178,9 @@ def _parse_scheme(raw: Any, file: str | None) -> SchemeSpec:
     except ConfigError as exc:
         raise ConfigError(exc.raw_message, file=file,
                           key="scheme.pulse" + (f".{exc.key}" if exc.key else "")) from None
-    shaped = sps > 1 or pulse.shape != "rectangular"
+    shaped = sps > 1 or not pulse.is_rectangular
     if tail == "auto":
-        tail = None if pulse.shape != "rectangular" else 0
+        tail = 0 if pulse.is_rectangular else None
     elif isinstance(tail, bool) or not isinstance(tail, int) or tail < 0:
         raise ConfigError(f"tail_samples={tail!r}: expected a whole number >= 0 or auto",
                           file=file, key="scheme.tail_samples")

@@ -11,7 +11,7 @@ import numpy as np
 from .bench import open_bench
 from .oracles._table import measure_table
 from .schemes.conventions import conventions_for
-from .schemes.geometry import MEASURED_RTOL, nearest_neighbour_pairs
+from .schemes.geometry import MEASURED_RTOL, all_distinct, nearest_neighbour_pairs
 from .schemes.labels import hamming, label_string
 from .schemes.transforms import DEFAULT_TOLERANCE, relate
 from .spec import DeviceSpec
@@ -30,7 +30,7 @@ def identify(spec: DeviceSpec, tolerance: float = DEFAULT_TOLERANCE, *, adapter=
     k = bench.k
     pts = table.points
     finite = bool(np.all(np.isfinite(pts)))
-    distinct = finite and len(np.unique(np.round(pts, 9))) == len(pts)
+    distinct = all_distinct(pts)
     out: dict = {
         "device": spec.name,
         "modulation": spec.scheme.modulation,

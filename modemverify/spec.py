@@ -38,7 +38,7 @@ class SchemeSpec:
     @property
     def shaped(self) -> bool:
         """True when the device's output is a waveform (a pulse, or several samples/symbol)."""
-        return self.samples_per_symbol > 1 or self.pulse.shape != "rectangular"
+        return self.samples_per_symbol > 1 or not self.pulse.is_rectangular
 
     @property
     def bits_per_symbol(self) -> int:
@@ -49,12 +49,7 @@ class SchemeSpec:
         return get_convention(self.convention, self.modulation)
 
     def describe(self) -> str:
-        pulse = ""
-        if self.pulse.shape != "rectangular":
-            p = self.pulse
-            extra = (f" rolloff {p.rolloff:g}" if p.rolloff is not None else
-                     f" BT {p.bt:g}" if p.bt is not None else "")
-            pulse = f", {p.shape}{extra} span {p.span}"
+        pulse = f", {self.pulse.describe()}" if not self.pulse.is_rectangular else ""
         return (f"{self.modulation} ({self.convention}), {self.samples_per_symbol} "
                 f"sample{'s' if self.samples_per_symbol > 1 else ''}/symbol{pulse}")
 

@@ -301,6 +301,40 @@ class PulseShape:
         h.setflags(write=False)
         return h
 
+    # -- what the pulse is: every other layer asks these instead of testing ``shape`` --------
+    @property
+    def is_rectangular(self) -> bool:
+        """True for the rectangular (held) pulse: no filter, no tail."""
+        return self.shape == "rectangular"
+
+    @property
+    def sampled_at_peaks(self) -> bool:
+        """True when the receiver samples the pulse's peaks instead of matched-filtering: the
+        raised cosine is itself a Nyquist pulse, which a matched filter would spoil (common
+        practice: rc is a transmit-side Nyquist shape)."""
+        return self.shape == "rc"
+
+    @property
+    def matched_pair(self) -> bool:
+        """True when the pulse and its matched filter together are a Nyquist pulse, so symbols
+        after the matched filter carry no inter-symbol interference and AWGN theory holds
+        (rrc and rectangular)."""
+        return self.shape in ("rrc", "rectangular")
+
+    @property
+    def has_isi(self) -> bool:
+        """True when the pulse is not Nyquist in any receiver the harness uses (gaussian):
+        every received symbol carries part of its neighbours."""
+        return self.shape == "gaussian"
+
+    def describe(self) -> str:
+        """``"rrc rolloff 0.35 span 10"``; empty for the rectangular pulse."""
+        if self.is_rectangular:
+            return ""
+        extra = (f" rolloff {self.rolloff:g}" if self.rolloff is not None else
+                 f" BT {self.bt:g}" if self.bt is not None else "")
+        return f"{self.shape}{extra} span {self.span}"
+
     @property
     def delay(self) -> float:
         """Samples from the start of a symbol's pulse to its peak (centre): ``(len(taps)-1)/2``."""

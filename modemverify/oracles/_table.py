@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..schemes.geometry import minimum_distance
+from ..schemes.geometry import all_distinct, minimum_distance
 from ..schemes.labels import bits_to_labels, labels_to_bits
 from ..vectors.coverage import de_bruijn_labels
 from ..bench import Bench
@@ -59,9 +59,9 @@ def _from_modulate(bench: Bench) -> MeasuredTable:
     dev = np.abs(sym - points[labels])
     spread = np.zeros(m)
     np.maximum.at(spread, labels, dev)
-    dmin = minimum_distance(points) if len(np.unique(np.round(points, 9))) == m else 0.0
+    dmin = minimum_distance(points) if all_distinct(points) else 0.0
     scale = dmin if dmin > 0 else max(np.sqrt(np.mean(np.abs(points) ** 2)), 1e-300)
-    if bench.spec.scheme.pulse.shape == "gaussian":
+    if bench.spec.scheme.pulse.has_isi:
         # a Gaussian pulse is not Nyquist: every symbol carries its neighbours' ISI, so the
         # memory test cannot tell a state bug from the pulse (documented limitation)
         spread = np.zeros(m)

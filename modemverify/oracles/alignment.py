@@ -21,6 +21,7 @@ from .base import Oracle
 
 class AlignmentOracle(Oracle):
     name = "alignment"
+    requires = ("modulate",)
     summary = "delay, gain, phase and frequency offset of the waveform against the reference"
     options = {
         "min_correlation": Opt("number", 0.9, "least correlation with the reference after "
@@ -36,8 +37,6 @@ class AlignmentOracle(Oracle):
     def applies(self, bench):
         if not bench.spec.scheme.shaped:
             return "one sample per symbol and no pulse: symbols are judged as they come"
-        if not bench.device.has("modulate"):
-            return "the device has no modulate"
         return None
 
     def run(self, bench, opts, rng, seed):

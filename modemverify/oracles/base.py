@@ -29,6 +29,9 @@ class Oracle:
 
     #: True when the check draws fresh random vectors (a replay-only device cannot answer)
     fresh_vectors: ClassVar[bool] = False
+    #: device operations the check needs (``modulate``, ``demodulate``, ``demodulate_soft``);
+    #: a device without one of them gets a skipped verdict that names it
+    requires: ClassVar[tuple[str, ...]] = ()
 
     def applies(self, bench: Bench) -> str | None:
         """None when the property applies to this device, else why not (a skipped verdict)."""
@@ -39,6 +42,9 @@ class Oracle:
         if self.fresh_vectors and bench.device.replays_only:
             return ("the device replays a recording and this check draws fresh vectors; "
                     "record a device's answers to them, or turn the check off")
+        missing = [op for op in self.requires if not bench.device.has(op)]
+        if missing:
+            return f"the device has no {missing[0]}"
         return self.applies(bench)
 
     def run(self, bench: Bench, opts: dict, rng: np.random.Generator, seed: int) -> list[Verdict]:

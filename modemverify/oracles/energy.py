@@ -17,6 +17,7 @@ from .base import Oracle
 
 class EnergyOracle(Oracle):
     name = "energy"
+    requires = ("modulate",)
     summary = ("energy per symbol (sum of |x|^2 over the waveform, per symbol) equals the "
                "convention's normalisation")
     options = {
@@ -24,9 +25,6 @@ class EnergyOracle(Oracle):
         "nominal": Opt("number", 1.0, "expected average symbol energy", minimum=0,
                        exclusive_minimum=True),
     }
-
-    def applies(self, bench):
-        return None if bench.device.has("modulate") else "the device has no modulate"
 
     def run(self, bench, opts, rng, seed):
         table = measure_table(bench)

@@ -25,6 +25,7 @@ from .base import Oracle
 
 class EvmOracle(Oracle):
     name = "evm"
+    requires = ("modulate",)
     fresh_vectors = True
     summary = "RMS and peak EVM of the device's symbols (3GPP definition) against a limit"
     options = {
@@ -32,11 +33,6 @@ class EvmOracle(Oracle):
                              "6.5.2.2-1 for the modulation)", minimum=0, exclusive_minimum=True),
         "symbols": Opt("int", 8192, "symbols in the probe", minimum=64),
     }
-
-    def applies(self, bench):
-        if not bench.device.has("modulate"):
-            return "the device has no modulate"
-        return None
 
     def run(self, bench, opts, rng, seed):
         mod = bench.convention.modulation
@@ -91,8 +87,8 @@ def _eye_traces(bench, raw, n, traces=120):
     pulse = bench.spec.scheme.pulse
     sps = bench.sps
     y = signal.oaconvolve(x, np.conj(pulse.taps[::-1]))
-    peak0 = int(round(2 * pulse.delay)) if pulse.shape != "rectangular" else sps - 1
-    first = max(pulse.span if pulse.shape != "rectangular" else 0, 1)
+    peak0 = sps - 1 if pulse.is_rectangular else int(round(2 * pulse.delay))
+    first = max(0 if pulse.is_rectangular else pulse.span, 1)
     out = []
     for s in range(first, min(n - 2, first + traces)):
         c = peak0 + s * sps

@@ -12,10 +12,8 @@ from .base import Oracle
 
 class FiniteOracle(Oracle):
     name = "finite"
+    requires = ("modulate",)
     summary = "no NaN or Inf in the modulator's output for any label"
-
-    def applies(self, bench):
-        return None if bench.device.has("modulate") else "the device has no modulate"
 
     def run(self, bench, opts, rng, seed):
         k = bench.k

@@ -35,6 +35,7 @@ def _format_of(bench):
 
 class FixedPointOracle(Oracle):
     name = "fixed_point"
+    requires = ("modulate",)
     summary = "integer-sample devices: clipping at the rails and SQNR against the reference"
     fresh_vectors = True
     options = {
@@ -49,8 +50,6 @@ class FixedPointOracle(Oracle):
         fmt, _ = _format_of(bench)
         if not fmt.startswith("int"):
             return f"the device's samples are {fmt}, not fixed point"
-        if not bench.device.has("modulate"):
-            return "the device has no modulate"
         return None
 
     def run(self, bench, opts, rng, seed):

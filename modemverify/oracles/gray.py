@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..schemes.geometry import MEASURED_RTOL, nearest_neighbour_pairs
+from ..schemes.geometry import MEASURED_RTOL, all_distinct, nearest_neighbour_pairs
 from ..schemes.labels import hamming, label_string
 from ..verdict import Verdict
 from ._table import measure_table
@@ -30,7 +30,7 @@ class GrayOracle(Oracle):
         table = measure_table(bench)
         pts = table.points
         k = bench.k
-        if np.any(~np.isfinite(pts)) or len(np.unique(np.round(pts, 9))) != len(pts):
+        if not all_distinct(pts):
             return [Verdict(self.name, "error",
                             "the device's table has coincident or non-finite points, so "
                             "neighbours are undefined (see the mapping and finite checks)",

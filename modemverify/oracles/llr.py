@@ -67,6 +67,7 @@ def _aligned(bench, samples, n_symbols):
 
 class LlrOracle(Oracle):
     name = "llr"
+    requires = ("demodulate_soft",)
     fresh_vectors = True
     summary = "soft outputs: sign convention, calibration, mutual information vs the reference"
     options = {
@@ -78,9 +79,6 @@ class LlrOracle(Oracle):
         "mi_tolerance": Opt("number", 0.01, "allowed mutual-information shortfall, in bits per "
                             "bit", minimum=0),
     }
-
-    def applies(self, bench: Bench):
-        return None if bench.device.has("demodulate_soft") else "the device has no demodulate_soft"
 
     def run(self, bench: Bench, opts, rng, seed):
         from ..schemes.theory import THEORY_MODULATIONS, ebn0_for_ber

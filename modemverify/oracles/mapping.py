@@ -13,8 +13,7 @@ import numpy as np
 
 from ..options import Opt
 from ..schemes.labels import label_string
-from ..schemes.transforms import (DEFAULT_TOLERANCE, describe_reassignment, differing_labels,
-                                  identity_assignment, relate)
+from ..schemes.transforms import DEFAULT_TOLERANCE, differing_labels, explain_difference
 from ..verdict import Verdict
 from ._table import measure_table
 from .base import Oracle
@@ -65,31 +64,12 @@ class MappingOracle(Oracle):
                             f"all {len(table.points)} labels map to the {conv.name} "
                             f"{conv.modulation} points (gain {gain:.4g})",
                             statistic=0.0, limit=tol, seed=seed, details=details)]
-        rels = relate(conv.points, table.points, tol)
+        reason, rels = explain_difference(conv.points, table.points, bad, gain, k, tol,
+                                          name=conv.name)
         details["relation"] = [r.to_json() for r in rels]
         l0 = bad[0]
         ce = (f"bits={list(map(int, label_string(l0, k)))} -> "
               f"{_fmt_point(table.points[l0])} (expected {_fmt_point(gain * conv.points[l0])})")
-        if rels and rels[0].permutation is not None and rels[0].cost > 0:
-            desc = rels[0].describe()
-            also = [r.describe() for r in rels[1:]]
-            reason = (f"device table is the {conv.name} table with {desc}"
-                      + (f" (the same as: {'; '.join(also)})" if also else ""))
-        else:
-            moved = identity_assignment(conv.points, table.points, gain, tol)
-            if moved is not None:
-                reason = (f"{len(bad)} of {len(table.points)} labels are at other {conv.name} "
-                          f"points, not explained by a bit reordering, inversion or symmetry: "
-                          f"{describe_reassignment(tuple(moved.tolist()), k)}")
-            elif rels:
-                reason = (f"{len(bad)} of {len(table.points)} labels differ from {conv.name}, "
-                          f"even after {' + '.join(rels[0].geometric_steps)}: "
-                          f"{describe_reassignment(rels[0].assignment, k)}")
-            else:
-                listed = ", ".join(label_string(l, k) for l in bad[:8])
-                reason = (f"{len(bad)} of {len(table.points)} points are not on the "
-                          f"{conv.name} constellation: labels {listed}"
-                          f"{' ...' if len(bad) > 8 else ''}")
         details["differing_labels"] = [label_string(l, k) for l in bad]
         return [Verdict(self.name, "fail", reason, statistic=float(len(bad)), limit=0.0,
                         unit="labels differ", counterexample=ce, seed=seed, details=details)]

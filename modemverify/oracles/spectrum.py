@@ -47,6 +47,7 @@ def _aclr(v):
 
 class SpectrumOracle(Oracle):
     name = "spectrum"
+    requires = ("modulate",)
     summary = "99 % occupied bandwidth against the declared pulse; optional x-dB width, mask, ACLR"
     fresh_vectors = True
     options = {
@@ -62,8 +63,6 @@ class SpectrumOracle(Oracle):
     }
 
     def applies(self, bench):
-        if not bench.device.has("modulate"):
-            return "the device has no modulate"
         if bench.sps < 2:
             return ("one sample per symbol: the output is the symbol sequence itself, with no "
                     "pulse shape to judge")

@@ -11,6 +11,13 @@ DISTANCE_RTOL = 1e-3
 MEASURED_RTOL = 0.05
 
 
+def all_distinct(points: np.ndarray) -> bool:
+    """True when every point is finite and no two coincide (to 9 decimals): a table that can
+    carry every label unambiguously."""
+    p = np.asarray(points, dtype=np.complex128)
+    return bool(np.all(np.isfinite(p))) and len(np.unique(np.round(p, 9))) == len(p)
+
+
 def distance_matrix(points: np.ndarray) -> np.ndarray:
     p = np.asarray(points, dtype=np.complex128)
     return np.abs(p[:, None] - p[None, :])

@@ -40,7 +40,7 @@ class ReferenceModem:
         self.k = convention.bits_per_symbol
         self.sps = int(samples_per_symbol)
         self.pulse = pulse if pulse is not None else PulseShape("rectangular", self.sps)
-        self._identity = self.sps == 1 and self.pulse.shape == "rectangular"
+        self._identity = self.sps == 1 and self.pulse.is_rectangular
         self._label_bits = labels_to_bits(np.arange(len(self.points)), self.k).reshape(-1, self.k)
         self._slicer = _make_slicer(self.points)
         self._axes = _separable_axes(self.points, self.k)
@@ -79,9 +79,7 @@ class ReferenceModem:
             n_symbols = max(samples.size - self.pulse.tail, 0) // self.sps
         if self._identity:
             return samples[:n_symbols]
-        if self.pulse.shape == "rc":
-            # the raised cosine is itself a Nyquist pulse: sampled at its peaks it has no ISI,
-            # which a matched filter would add (common practice: rc is a Tx-side Nyquist shape)
+        if self.pulse.sampled_at_peaks:
             peaks = np.arange(n_symbols) * self.sps + int(self.pulse.delay)
             out = np.zeros(n_symbols, dtype=np.complex128)
             ok = peaks < samples.size

@@ -273,3 +273,33 @@ def describe_reassignment(assignment: tuple[int, ...], k: int) -> str:
 
 __all__ = ["Relation", "relate", "candidate_relations", "differing_labels",
            "identity_assignment", "describe_reassignment", "DEFAULT_TOLERANCE"]
+
+
+def explain_difference(reference: np.ndarray, device: np.ndarray, bad: list[int], gain: float,
+                       k: int, tolerance: float = DEFAULT_TOLERANCE, *, name: str,
+                       subject: str = "device table") -> tuple[str, list[Relation]]:
+    """Why ``device`` is not ``reference`` (``bad`` from :func:`differing_labels`): one line
+    naming the simplest transform and its equivalents, the labels that trade places, or the
+    points that are not on the constellation; with the relations found.
+
+    ``name`` names the reference in the text (``"3gpp"``: "the 3gpp table", "3gpp points");
+    ``subject`` names the device's table.
+    """
+    n = len(device)
+    rels = relate(reference, device, tolerance)
+    if rels and rels[0].permutation is not None and rels[0].cost > 0:
+        also = [r.describe() for r in rels[1:]]
+        return (f"{subject} is the {name} table with {rels[0].describe()}"
+                + (f" (the same as: {'; '.join(also)})" if also else "")), rels
+    moved = identity_assignment(reference, device, gain, tolerance)
+    if moved is not None:
+        return (f"{len(bad)} of {n} labels are at other {name} points, not explained by a bit "
+                f"reordering, inversion or symmetry: "
+                f"{describe_reassignment(tuple(moved.tolist()), k)}"), rels
+    if rels:
+        return (f"{len(bad)} of {n} labels differ from {name}, even after "
+                f"{' + '.join(rels[0].geometric_steps)}: "
+                f"{describe_reassignment(rels[0].assignment, k)}"), rels
+    listed = ", ".join(label_string(l, k) for l in bad[:8])
+    return (f"{len(bad)} of {n} points are not on the {name} constellation: labels {listed}"
+            f"{' ...' if len(bad) > 8 else ''}"), rels
