@@ -47,8 +47,28 @@ class ModemAdapter(ABC):
     #: (the harness then never wraps it in a worker)
     isolates_itself: ClassVar[bool] = False
 
-    #: the calls this device offers, a subset of :data:`CAPABILITIES`
-    capabilities: frozenset[str] = frozenset()
+    @property
+    def capabilities(self) -> frozenset[str]:
+        """The calls this device offers, a subset of :data:`CAPABILITIES`.
+
+        By default, the operations the adapter's class implements (overrides); an adapter
+        whose device decides at run time (a wrapped object, a library's symbols, a process's
+        hello) assigns ``self.capabilities`` instead.
+        """
+        given = self.__dict__.get("_capabilities")
+        if given is not None:
+            return given
+        return frozenset(op for op in CAPABILITIES
+                         if getattr(type(self), op) is not getattr(ModemAdapter, op))
+
+    @capabilities.setter
+    def capabilities(self, value) -> None:
+        ops = frozenset(value)
+        unknown = sorted(ops - set(CAPABILITIES))
+        if unknown:
+            raise ValueError(f"capabilities={sorted(ops)}: {unknown[0]!r} is not one of "
+                             f"{', '.join(CAPABILITIES)}")
+        self.__dict__["_capabilities"] = ops
 
     #: True for devices that can only replay what was recorded (``recorded``): checks that
     #: draw fresh vectors (roundtrip, ber, llr) are then skipped, with that reason

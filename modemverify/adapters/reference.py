@@ -15,7 +15,6 @@ from .base import ModemAdapter
 
 class ReferenceAdapter(ModemAdapter):
     adapter_id = "reference"
-    capabilities = frozenset({"modulate", "demodulate", "demodulate_soft"})
 
     def __init__(self, modem: ReferenceModem):
         self.modem = modem

@@ -56,6 +56,21 @@ class TinyAdapter(ModemAdapter):
         return np.stack([samples.real < 0, samples.imag < 0], axis=1).astype(np.uint8).ravel()
 
 
+class BareAdapter(ModemAdapter):
+    """A modulator only, with no capabilities declared, whose I and Q arms are swapped:
+    b(2i) drives Q and b(2i+1) drives I, against TS 38.211 5.1.3."""
+
+    adapter_id = "tiny-bare"
+
+    @classmethod
+    def from_spec(cls, spec):
+        return cls()
+
+    def modulate(self, bits):
+        b = bits.reshape(-1, 2).astype(float)
+        return ((1 - 2 * b[:, 1]) + 1j * (1 - 2 * b[:, 0])) / np.sqrt(2)
+
+
 class NotAnAdapter:
     pass
 '''
@@ -65,6 +80,7 @@ ENTRY_POINTS = f"""
 tiny = mv_tiny_plugin:TinyAdapter
 tiny-broken = mv_tiny_missing_module:Adapter
 tiny-notadapter = mv_tiny_plugin:NotAnAdapter
+tiny-bare = mv_tiny_plugin:BareAdapter
 """
 
 
@@ -105,6 +121,20 @@ def test_plugin_keys_are_allowed_and_validated(plugin_dir):
     with pytest.raises(ConfigError) as info:
         parse_device(spec_data(gain=2.0))
     assert "unknown key 'gain'" in str(info.value) and "amplitude" in str(info.value)
+
+
+@pytest.mark.parametrize("isolate", [False, True])
+def test_capabilities_follow_the_operations_a_plugin_implements(plugin_dir, isolate):
+    # a plugin that implements modulate and says nothing else is judged on its modulate: the
+    # swapped arms fail mapping (for QPSK the same as reversing the two bits), and roundtrip
+    # runs the device's modulator into the reference's demodulator, not reference -> reference
+    result = check(parse_device(spec_data(adapter="tiny-bare", isolate=isolate)))
+    v = {x.name: x for x in result.verdicts}
+    assert v["mapping"].outcome == "fail"
+    assert "I and Q arms swapped" in v["mapping"].reason
+    assert v["roundtrip"].outcome == "fail"
+    assert "device modulate -> reference demodulate" in v["roundtrip"].reason
+    assert v["length.modulate"].outcome == "pass"
 
 
 def test_plugin_runs_isolated_in_a_worker(plugin_dir):
