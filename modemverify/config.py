@@ -20,29 +20,48 @@ from .options import Opt, validate_options
 from .schemes.conventions import CONVENTIONS, MODULATIONS, get_convention
 from .spec import DEFAULT_TIMEOUT_S, DeviceSpec, SchemeSpec
 
-#: top-level keys every device file may have, with their descriptions (README reference)
-COMMON_KEYS: dict[str, str] = {
-    "name": "free text naming the device (required)",
-    "description": "free text",
-    "adapter": "which adapter wraps the device: python, reference, or a plugin (required)",
-    "target": "for the python adapter: FILE.py:NAME or package.module:NAME",
-    "params": "keyword arguments for the target callable",
-    "scheme": "the modulation and convention the device claims (required)",
-    "checks": "which checks, with what limits; every check that applies runs unless set to false",
-    "fail_on_inconclusive": "true: an inconclusive verdict fails the run (default false)",
-    "isolate": "run the device in a worker process, so that a crash or a hang becomes an error "
-               "verdict (default: false for python and reference, true for sharedlib and process)",
-    "timeout_s": "per-call timeout in seconds for a device out of the harness's process "
-                 "(default 10)",
+def _non_empty(text: str) -> str | None:
+    return None if text.strip() else "expected non-empty text"
+
+
+#: top-level keys every device file may have (an adapter adds its own: ``config_keys``)
+COMMON_OPTIONS: dict[str, Opt] = {
+    "name": Opt("str", None, "free text naming the device (required)", required=True,
+                expected="non-empty text", check=_non_empty),
+    "description": Opt("str", "", "free text, shown in the report"),
+    "adapter": Opt("str", None, "which adapter wraps the device: python, reference, sharedlib, "
+                   "process, recorded or a plugin (required)", required=True,
+                   expected="an adapter name"),
+    "target": Opt("str", None, "for the python adapter: FILE.py:NAME or package.module:NAME",
+                  expected="text such as modem.py:Modem"),
+    "params": Opt("mapping", {}, "keyword arguments for the target callable", also=(None,),
+                  expected="a mapping of keyword arguments"),
+    "scheme": Opt("mapping", None, "the modulation and convention the device claims (required)",
+                  required=True, expected="a mapping with modulation and convention"),
+    "checks": Opt("mapping", None, "which checks, with what limits; every check that applies "
+                  "runs unless set to false", also=(None,),
+                  expected="a mapping of check names to options (or false to turn a check "
+                           "off)"),
+    "fail_on_inconclusive": Opt("bool", False, "true: an inconclusive verdict fails the run"),
+    "isolate": Opt("bool", None, "run the device in a worker process, so that a crash or a "
+                   "hang becomes an error verdict (default: false for python, reference and "
+                   "recorded, true for sharedlib; process always runs its own process)"),
+    "timeout_s": Opt("number", DEFAULT_TIMEOUT_S, "per-call timeout in seconds for a device "
+                     "out of the harness's process", minimum=0, exclusive_minimum=True),
 }
 
 SCHEME_OPTIONS: dict[str, Opt] = {
-    "modulation": Opt("choice", None, "modulation", choices=tuple(MODULATIONS)),
-    "convention": Opt("choice", None, "labelling the device claims", choices=CONVENTIONS),
+    "modulation": Opt("choice", None, "the modulation (required): "
+                      + ", ".join(MODULATIONS), choices=tuple(MODULATIONS), required=True),
+    "convention": Opt("choice", None, "the labelling the device claims (required): "
+                      + ", ".join(CONVENTIONS), choices=CONVENTIONS, required=True),
     "samples_per_symbol": Opt("int", 1, "samples per symbol at the device's output", minimum=1),
     "llr_positive_bit": Opt("choice", 0, "the bit a positive LLR stands for", choices=(0, 1)),
     "pulse": Opt("mapping", None, "pulse shape: {shape: rrc|rc|rectangular|gaussian, "
                  "rolloff, span, bt} (default rectangular)"),
+    "tail_samples": Opt("int", "auto", "samples the device's modulate output has beyond "
+                        "n x samples_per_symbol (default auto: 0 without a pulse, any constant "
+                        "with one)", minimum=0, also=("auto",)),
     "alignment": Opt("mapping", None, "which corrections may be applied to the device's "
                      "waveform: {delay, phase, frequency} (default: all with a pulse or more "
                      "than one sample per symbol, none otherwise)"),
@@ -91,77 +110,43 @@ def parse_device(data: Any, *, file: str | None = None,
     if not isinstance(data, dict):
         raise ConfigError(f"expected a mapping of keys at the top level, found "
                           f"{type(data).__name__}", file=file)
-    for required in ("name", "adapter", "scheme"):
-        if required not in data:
-            raise ConfigError(f"missing key {required!r}: {COMMON_KEYS[required]}", file=file,
-                              key=required)
-    name = data["name"]
-    if not isinstance(name, str) or not name.strip():
-        raise ConfigError(f"name={name!r}: expected non-empty text", file=file, key="name")
+    for name in ("name", "adapter"):  # the adapter says which other keys there may be
+        if name not in data:
+            raise ConfigError(f"missing key {name!r}: {COMMON_OPTIONS[name].help}", file=file,
+                              key=name)
+        COMMON_OPTIONS[name].validate(data[name], file=file, key=name)
     adapter_name = data["adapter"]
-    if not isinstance(adapter_name, str):
-        raise ConfigError(f"adapter={adapter_name!r}: expected an adapter name", file=file,
-                          key="adapter")
     try:
         adapter_cls = get_adapter_class(adapter_name)
     except UnknownNameError as exc:
         raise UnknownNameError("adapter", adapter_name, exc.known, file=file,
                                key="adapter") from None
-
-    allowed = set(COMMON_KEYS) | set(adapter_cls.config_keys)
-    unknown = sorted(set(data) - allowed, key=str)
+    own = {k: (o if isinstance(o, Opt) else Opt("any", None, o))
+           for k, o in adapter_cls.config_keys.items()}
+    table = {**COMMON_OPTIONS, **own}
+    unknown = sorted(set(data) - set(table), key=str)
     if unknown:
         raise ConfigError(f"unknown key {unknown[0]!r}; keys for adapter {adapter_name!r}: "
-                          f"{', '.join(sorted(allowed))}", file=file, key=str(unknown[0]))
-
-    scheme = _parse_scheme(data["scheme"], file)
-    params = data.get("params") or {}
-    if not isinstance(params, dict):
-        raise ConfigError(f"params={params!r}: expected a mapping of keyword arguments",
-                          file=file, key="params")
-    target = data.get("target")
-    if target is not None and not isinstance(target, str):
-        raise ConfigError(f"target={target!r}: expected text such as modem.py:Modem",
-                          file=file, key="target")
-    fail_inc = data.get("fail_on_inconclusive", False)
-    if not isinstance(fail_inc, bool):
-        raise ConfigError(f"fail_on_inconclusive={fail_inc!r}: expected true or false",
-                          file=file, key="fail_on_inconclusive")
-    isolate = data.get("isolate", adapter_cls.isolate_default)
-    if not isinstance(isolate, bool):
-        raise ConfigError(f"isolate={isolate!r}: expected true or false", file=file, key="isolate")
-    timeout_s = Opt("number", DEFAULT_TIMEOUT_S, "", minimum=0, exclusive_minimum=True).validate(
-        data.get("timeout_s", DEFAULT_TIMEOUT_S), file=file, key="timeout_s")
+                          f"{', '.join(sorted(table))}", file=file, key=str(unknown[0]))
+    opts = validate_options(table, data, file=file, key="")
+    isolate = adapter_cls.isolate_default if opts["isolate"] is None else opts["isolate"]
     if "timeout_s" in data and not (isolate or adapter_cls.isolates_itself):
         # a call in the harness's own process cannot be interrupted safely
         raise ConfigError(f"timeout_s={data['timeout_s']!r} needs isolate: true (a device in the "
                           f"harness's own process cannot be stopped)", file=file, key="timeout_s")
-    description = data.get("description", "")
-    if not isinstance(description, str):
-        raise ConfigError(f"description={description!r}: expected text", file=file,
-                          key="description")
     spec = DeviceSpec(
-        name=name.strip(), adapter=adapter_name, scheme=scheme, target=target, params=params,
-        checks={}, fail_on_inconclusive=fail_inc, isolate=isolate, timeout_s=timeout_s,
-        description=description, file=file,
-        base_dir=base_dir or Path.cwd(),
-        extra={k: data[k] for k in adapter_cls.config_keys if k in data})
-    spec.checks = validate_checks(data.get("checks"), spec, file=file)
+        name=opts["name"].strip(), adapter=adapter_name, scheme=_parse_scheme(opts["scheme"], file),
+        target=opts["target"], params=opts["params"] or {}, checks={},
+        fail_on_inconclusive=opts["fail_on_inconclusive"], isolate=isolate,
+        timeout_s=opts["timeout_s"], description=opts["description"], file=file,
+        base_dir=base_dir or Path.cwd(), extra={k: opts[k] for k in own if k in data})
+    spec.checks = validate_checks(opts["checks"], spec, file=file)
     adapter_cls.validate_spec(spec)
     return spec
 
 
 def _parse_scheme(raw: Any, file: str | None) -> SchemeSpec:
-    if not isinstance(raw, dict):
-        raise ConfigError(f"scheme={raw!r}: expected a mapping with modulation and convention",
-                          file=file, key="scheme")
-    for required in ("modulation", "convention"):
-        if required not in raw:
-            raise ConfigError(f"missing key {required!r}; expected one of "
-                              f"{', '.join(SCHEME_OPTIONS[required].choices)}",
-                              file=file, key=f"scheme.{required}")
     raw = dict(raw)
-    tail = raw.pop("tail_samples", "auto")  # a number or "auto": checked below
     if isinstance(raw.get("modulation"), str):
         raw["modulation"] = raw["modulation"].lower()
     opts = validate_options(SCHEME_OPTIONS, raw, file=file, key="scheme")
@@ -179,11 +164,9 @@ def _parse_scheme(raw: Any, file: str | None) -> SchemeSpec:
         raise ConfigError(exc.raw_message, file=file,
                           key="scheme.pulse" + (f".{exc.key}" if exc.key else "")) from None
     shaped = sps > 1 or not pulse.is_rectangular
+    tail = opts["tail_samples"]
     if tail == "auto":
         tail = 0 if pulse.is_rectangular else None
-    elif isinstance(tail, bool) or not isinstance(tail, int) or tail < 0:
-        raise ConfigError(f"tail_samples={tail!r}: expected a whole number >= 0 or auto",
-                          file=file, key="scheme.tail_samples")
     defaults = {name: shaped for name in ALIGNMENT_OPTIONS}
     given = opts["alignment"] or {}
     align = validate_options(ALIGNMENT_OPTIONS, given, file=file, key="scheme.alignment")

@@ -13,7 +13,12 @@ class Opt:
     """One option: its kind, default and a one-line description.
 
     ``kind`` is one of ``"number"``, ``"int"``, ``"bool"``, ``"str"``, ``"numbers"`` (a list of
-    numbers or one number), ``"choice"`` (with ``choices``), ``"list"`` or ``"mapping"``.
+    numbers or one number), ``"choice"`` (with ``choices``), ``"list"``, ``"mapping"`` or ``"any"`` (checked by its
+    owner, such as an adapter's ``validate_spec``).
+    ``also`` lists literal values accepted as they are beside the kind (``"auto"``, ``None``);
+    ``expected`` replaces the kind's own words in the message for a value of the wrong type;
+    ``required`` makes a missing key an error that quotes ``help``; ``check`` returns a
+    problem (text) or None for a value of the right kind.
     """
 
     kind: str
@@ -24,8 +29,13 @@ class Opt:
     exclusive_minimum: bool = False
     choices: tuple = ()
     check: Callable[[Any], str | None] | None = None
+    also: tuple = ()
+    expected: str | None = None
+    required: bool = False
 
     def validate(self, value: Any, *, file: str | None, key: str) -> Any:
+        if any(value is a or (type(value) is type(a) and value == a) for a in self.also):
+            return value
         v = _coerce(self, value, file=file, key=key)
         for x in (v if self.kind == "numbers" else [v] if self.kind in ("number", "int") else []):
             if self.minimum is not None and (x < self.minimum or
@@ -64,6 +74,7 @@ _SIMPLE = {
     "str": (lambda v: isinstance(v, str), "text"),
     "list": (lambda v: isinstance(v, list), "a list"),
     "mapping": (lambda v: isinstance(v, dict), "a mapping"),
+    "any": (lambda v: True, "anything"),  # checked by its owner (an adapter's validate_spec)
 }
 
 
@@ -71,6 +82,10 @@ def _coerce(opt: Opt, value, *, file, key):
     short = key.rsplit(".", 1)[-1]
 
     def bad(expected):
+        if opt.expected:
+            expected = opt.expected
+        elif opt.also:
+            expected += "".join(f" or {a}" for a in opt.also if a is not None)
         return ConfigError(f"{short}={value!r}: expected {expected}", file=file, key=key)
 
     if opt.kind in _SIMPLE:
@@ -109,12 +124,16 @@ def validate_options(spec: dict[str, Opt], given: Any, *, file: str | None, key:
     if not isinstance(given, dict):
         raise ConfigError(f"{key.rsplit('.', 1)[-1]}={given!r}: expected a mapping of options "
                           f"(or true / false)", file=file, key=key)
-    unknown = sorted(set(given) - set(spec))
+    for name, opt in spec.items():
+        if opt.required and name not in given:
+            raise ConfigError(f"missing key {name!r}: {opt.help}", file=file,
+                              key=f"{key}.{name}" if key else name)
+    unknown = sorted(set(given) - set(spec), key=str)
     if unknown:
         known = ", ".join(sorted(spec)) or "none"
         raise ConfigError(f"unknown option {unknown[0]!r}; known options: {known}",
                           file=file, key=f"{key}.{unknown[0]}")
     out = {name: opt.default for name, opt in spec.items()}
     for name, value in given.items():
-        out[name] = spec[name].validate(value, file=file, key=f"{key}.{name}")
+        out[name] = spec[name].validate(value, file=file, key=f"{key}.{name}" if key else name)
     return out

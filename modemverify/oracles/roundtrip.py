@@ -18,7 +18,7 @@ from ..errors import AdapterError
 from ..options import Opt
 from ..schemes.labels import labels_to_bits
 from ..vectors.coverage import de_bruijn_labels
-from ..vectors.prbs import prbs
+from ..vectors.prbs import PRBS_PATTERNS, prbs
 from ..vectors.strategies import bit_sequences
 from ..verdict import Verdict
 from ..bench import Bench
@@ -38,7 +38,8 @@ class RoundtripOracle(Oracle):
     options = {
         "max_examples": Opt("int", 200, "hypothesis examples searched", minimum=1),
         "max_symbols": Opt("int", 64, "longest hypothesis sequence, in symbols", minimum=1),
-        "prbs": Opt("str", "prbs15", "PRBS pattern for the fixed vectors"),
+        "prbs": Opt("choice", "prbs15", "PRBS pattern for the fixed vectors (ITU-T O.150)",
+                    choices=tuple(PRBS_PATTERNS)),
     }
 
     def run(self, bench: Bench, opts, rng, seed):

@@ -1,0 +1,69 @@
+"""Every device-file key is validated by one mechanism (``options.Opt``) when the file is loaded.
+
+Each row is a key with a value of the wrong kind or range; loading must stop with a ConfigError
+naming the key and what was expected, before any vector is drawn.
+"""
+
+from __future__ import annotations
+
+import pytest
+
+from modemverify.config import COMMON_OPTIONS, SCHEME_OPTIONS, parse_device
+from modemverify.errors import ConfigError
+from modemverify.oracles import ORACLES
+
+
+def base(**changes):
+    data = {"name": "ref", "adapter": "reference",
+            "scheme": {"modulation": "qpsk", "convention": "3gpp"}}
+    data.update(changes)
+    return data
+
+
+def scheme(**changes):
+    return base(scheme={"modulation": "qpsk", "convention": "3gpp", **changes})
+
+
+@pytest.mark.parametrize("data,key,words", [
+    (base(name=""), "name", "name='': expected non-empty text"),
+    (base(name=3), "name", "name=3: expected non-empty text"),
+    (base(adapter=["reference"]), "adapter", "expected an adapter name"),
+    (base(description=5), "description", "description=5: expected text"),
+    (base(params=[1, 2]), "params", "expected a mapping of keyword arguments"),
+    (base(scheme="qpsk"), "scheme", "expected a mapping with modulation and convention"),
+    (base(checks=["mapping"]), "checks", "expected a mapping of check names to options"),
+    (base(fail_on_inconclusive="yes"), "fail_on_inconclusive", "expected true or false"),
+    (base(isolate=1), "isolate", "isolate=1: expected true or false"),
+    (base(isolate=True, timeout_s=0), "timeout_s", "expected a value > 0"),
+    (base(timeout_s=5), "timeout_s", "needs isolate: true"),
+    (scheme(samples_per_symbol=2.5), "scheme.samples_per_symbol", "expected a whole number"),
+    (scheme(llr_positive_bit=2), "scheme.llr_positive_bit", "expected one of 0, 1"),
+    (scheme(tail_samples=-1), "scheme.tail_samples", "expected a value >= 0"),
+    (scheme(tail_samples="some"), "scheme.tail_samples", "expected a whole number or auto"),
+    (scheme(tail_samples=True), "scheme.tail_samples", "expected a whole number or auto"),
+    (scheme(pulse={"shape": "sinc"}), "scheme.pulse.shape", "expected one of rrc, rc"),
+    (scheme(alignment={"phase": "no"}), "scheme.alignment.phase", "expected true or false"),
+    (base(scheme={"convention": "3gpp"}), "scheme.modulation", "missing key 'modulation'"),
+    (base(checks={"roundtrip": {"prbs": "prbs16"}}), "checks.roundtrip.prbs",
+     "expected one of prbs7, prbs9, prbs11"),
+])
+def test_a_wrong_value_names_its_key(data, key, words):
+    with pytest.raises(ConfigError) as info:
+        parse_device(data, file="dev.yaml")
+    assert info.value.file == "dev.yaml"
+    assert info.value.key == key
+    assert words in str(info.value)
+
+
+def test_good_values_load():
+    spec = parse_device(scheme(tail_samples="auto", samples_per_symbol=4, llr_positive_bit=1,
+                               alignment={"phase": False}) | {"params": None, "checks": None})
+    assert spec.scheme.tail_samples == 0
+    assert spec.scheme.alignment == {"delay": True, "phase": False, "frequency": True}
+    assert spec.params == {} and spec.isolate is False and spec.timeout_s == 10.0
+
+
+def test_every_option_has_a_description():
+    tables = [COMMON_OPTIONS, SCHEME_OPTIONS] + [o.options for o in ORACLES.values()]
+    missing = [name for table in tables for name, opt in table.items() if not opt.help.strip()]
+    assert missing == []
