@@ -2,8 +2,6 @@
 
 - :mod:`~modemverify.vectors.prbs`: ITU-T O.150 PRBS patterns (and the common PRBS7);
 - :mod:`~modemverify.vectors.coverage`: every label, and de Bruijn sequences (every transition);
-- :mod:`~modemverify.vectors.patterns`: fixed patterns (zeros, ones, alternating, label sweeps,
-  walking one);
 - :mod:`~modemverify.vectors.strategies`: hypothesis strategies for bit and label sequences;
 - :mod:`~modemverify.vectors.channels`: calibrated AWGN and deterministic impairments.
 
@@ -31,15 +29,6 @@ from modemverify.vectors.coverage import (
     exhaustive_bits,
     exhaustive_labels,
 )
-from modemverify.vectors.patterns import (
-    PATTERNS,
-    all_ones,
-    all_zeros,
-    alternating,
-    each_label_repeated,
-    pattern,
-    walking_one,
-)
 from modemverify.vectors.prbs import PRBS_PATTERNS, PrbsSpec, PrbsStream, prbs, prbs_spec
 from modemverify.vectors.strategies import bit_sequences, label_sequences
 
@@ -49,9 +38,6 @@ __all__ = [
     # coverage
     "MAX_BITS_PER_SYMBOL", "MAX_DE_BRUIJN_LENGTH", "exhaustive_labels", "exhaustive_bits",
     "de_bruijn", "de_bruijn_labels", "de_bruijn_bits",
-    # patterns
-    "all_zeros", "all_ones", "alternating", "each_label_repeated", "walking_one", "PATTERNS",
-    "pattern",
     # strategies
     "bit_sequences", "label_sequences",
     # channels
