@@ -237,3 +237,22 @@ def test_names_and_argument_errors():
     empty = prbs("prbs9", 0)
     assert empty.dtype == np.uint8 and empty.size == 0
     assert prbs("prbs9", 10).dtype == np.uint8
+
+
+def test_package_door_keeps_the_submodule_name_and_reexports_the_rest():
+    # ``modemverify.vectors.prbs`` is the submodule, however it is reached (binding the
+    # generator function under that name in the package would hide it from ``import ... as``).
+    import importlib
+
+    import modemverify.vectors as door
+    import modemverify.vectors.prbs as module
+
+    assert module is importlib.import_module("modemverify.vectors.prbs") is door.prbs
+    assert module.prbs is prbs
+    # the door lists each public name of its submodules once, bound to the same object
+    subs = [importlib.import_module(f"modemverify.vectors.{s}")
+            for s in ("channels", "coverage", "prbs", "strategies")]
+    public = [(m, name) for m in subs for name in m.__all__ if name != "prbs"]
+    assert sorted(door.__all__) == sorted(name for _, name in public)
+    for m, name in public:
+        assert getattr(door, name) is getattr(m, name), name
