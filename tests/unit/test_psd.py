@@ -9,7 +9,7 @@ import math
 import numpy as np
 import pytest
 from hypothesis import given, settings, strategies as st
-from scipy import integrate
+from scipy import integrate, optimize, special
 
 from modemverify.dsp.psd import (MaskResult, aclr, channel_power, mask_check, mask_level_db,
                                  occupied_bandwidth, welch_psd, x_db_bandwidth)
@@ -86,12 +86,29 @@ def test_welch_obw_of_rrc_qpsk():
     assert np.mean(s[band] * 8 / ref[band]) == pytest.approx(1.0, rel=0.01)
 
 
+def _dirichlet_obw(sps, fraction=0.99):
+    """99 % width (in Rs) of a sampled rectangular hold's spectrum over one sample-rate period,
+    by quadrature between the nulls at the multiples of Rs and a root find."""
+    spectrum = lambda v: special.diric(2 * np.pi * v / sps, sps) ** 2  # noqa: E731
+    nulls = np.arange(-sps // 2 + 1, sps // 2)
+    total = integrate.quad(spectrum, -sps / 2, sps / 2, points=nulls, limit=500)[0]
+
+    def short_of(w):
+        inner = [v for v in nulls if abs(v) < w / 2] or None
+        return integrate.quad(spectrum, -w / 2, w / 2, points=inner, limit=500)[0] / total \
+            - fraction
+
+    return optimize.brentq(short_of, 1.0, sps - 1.0, xtol=1e-10)
+
+
 def test_welch_obw_of_rectangular_bpsk():
     # 99 % width of the rect pulse is 20.57/Ts, computed numerically from S(f) = Ts sinc^2(f Ts)
     # (Sklar, Digital Communications, 2nd ed., sec. 1.7.2, gives about 20.6/Ts; table from
-    # memory). A *sampled* hold at 64 sps has the aliased (Dirichlet) spectrum, whose 99 % width
-    # is 18.906/Ts (tails above the sample rate fold back into the band), so the estimate is
-    # held to that value; test_pulses checks that it tends to 20.57 as sps grows. Tolerance:
+    # memory). A *sampled* hold at 64 sps has the aliased (Dirichlet) spectrum
+    # diric(2 pi f / sps, sps)^2, whose 99 % width is 18.906/Ts (tails above the sample rate fold
+    # back into the band; computed below with scipy.integrate.quad and scipy.optimize.brentq),
+    # so the estimate is held to that value; test_pulses checks that it tends to 20.57 as sps
+    # grows. Tolerance:
     # the tail power comes from symbol transitions, whose count fluctuates by 1/sqrt(n); over
     # seeds the estimate spreads by about +-0.5 % at 2^15 symbols.
     rng = np.random.default_rng(64)
@@ -100,7 +117,7 @@ def test_welch_obw_of_rectangular_bpsk():
     f, s = welch_psd(p.shape_symbols(bpsk(rng, 1 << 15)), sps)
     w, lo, hi = occupied_bandwidth(f, s)
     assert w == pytest.approx(p.occupied_bandwidth(truncated=True), rel=0.015)
-    assert p.occupied_bandwidth(truncated=True) == pytest.approx(18.906, abs=1e-3)
+    assert p.occupied_bandwidth(truncated=True) == pytest.approx(_dirichlet_obw(sps), rel=1e-6)
     assert w == pytest.approx(20.57, rel=0.12)
 
 
