@@ -70,16 +70,6 @@ class Convention:
     def bits_per_symbol(self) -> int:
         return MODULATIONS[self.modulation]
 
-    @property
-    def order(self) -> int:
-        return 1 << self.bits_per_symbol
-
-    def modulate(self, bits: np.ndarray) -> np.ndarray:
-        """Map bits to points (the reference modulator, one sample per symbol)."""
-        from .labels import bits_to_labels
-
-        return self.points[bits_to_labels(bits, self.bits_per_symbol)]
-
 
 def _bits_matrix(k: int) -> np.ndarray:
     """Row ``label`` holds that label's bits, first-fed bit in column 0."""

@@ -8,6 +8,7 @@ import pytest
 
 from modemverify.config import load_device
 from modemverify.errors import ConfigError
+from modemverify.oracles import ORACLES
 
 GOOD = """
 name: qpsk-port
@@ -27,8 +28,17 @@ def write(tmp_path, text, name="dev.yaml"):
 
 
 def test_good_file_loads(tmp_path):
-    spec = load_device(write(tmp_path, GOOD))
-    assert spec.scheme.bits_per_symbol == 2 and spec.checks["mapping"] is not None
+    path = write(tmp_path, GOOD)
+    spec = load_device(path)
+    assert (spec.name, spec.adapter, spec.target, spec.file) == (
+        "qpsk-port", "python", "devices/modems.py:Qpsk3gpp", str(path))
+    s = spec.scheme
+    assert (s.modulation, s.convention, s.samples_per_symbol, s.bits_per_symbol) == (
+        "qpsk", "3gpp", 1, 2)
+    # no checks section: every check runs with its documented defaults
+    assert set(spec.checks) == set(ORACLES)
+    assert spec.checks["mapping"] == {name: opt.default
+                                      for name, opt in ORACLES["mapping"].options.items()}
 
 
 @pytest.mark.parametrize("text,key,words", [
@@ -56,11 +66,12 @@ def test_errors_name_file_key_and_expectation(tmp_path, text, key, words):
     path = write(tmp_path, text)
     with pytest.raises(ConfigError) as info:
         load_device(path)
-    msg = str(info.value)
-    assert msg.startswith(str(path)), msg
-    if key:
-        assert f": {key}:" in msg or f": {key}" in msg, msg
-    assert words in msg, msg
+    err = info.value
+    assert (err.file, err.key) == (str(path), key)
+    msg = str(err)
+    # "<file>: <key>: <what was found and what was expected>", or "<file>: ..." with no key
+    assert msg.startswith(f"{path}: {key}: " if key else f"{path}: "), msg
+    assert words in err.raw_message, msg
 
 
 def test_missing_file():

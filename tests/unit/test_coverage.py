@@ -1,8 +1,7 @@
-"""Coverage sequences (exhaustive, de Bruijn) and fixed patterns.
+"""Coverage sequences: exhaustive labels and de Bruijn sequences.
 
 de Bruijn sequence, common practice (N. G. de Bruijn 1946, from memory): B(M, n) has length M**n
-and contains every ordered n-tuple over M symbols exactly once as a cyclic window. The fixed
-patterns (all zeros/ones, alternating, label sweeps, walking one) are common practice.
+and contains every ordered n-tuple over M symbols exactly once as a cyclic window.
 """
 
 from __future__ import annotations
@@ -10,8 +9,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from modemverify.errors import ConfigError, UnknownNameError
-from modemverify.schemes.labels import bits_to_labels, hamming
+from modemverify.errors import ConfigError
+from modemverify.schemes.labels import bits_to_labels
 from modemverify.vectors.coverage import (
     _de_bruijn_fkm,
     _de_bruijn_pairs,
@@ -20,15 +19,6 @@ from modemverify.vectors.coverage import (
     de_bruijn_labels,
     exhaustive_bits,
     exhaustive_labels,
-)
-from modemverify.vectors.patterns import (
-    PATTERNS,
-    all_ones,
-    all_zeros,
-    alternating,
-    each_label_repeated,
-    pattern,
-    walking_one,
 )
 
 
@@ -154,67 +144,3 @@ def test_coverage_argument_errors():
     with pytest.raises(ConfigError) as info:
         de_bruijn_labels(8, order=4)  # 2**32 symbols
     assert info.value.key == "order" and "exceeds" in str(info.value)
-
-
-# --------------------------------------------------------------------------------------------
-# fixed patterns (common practice)
-
-
-@pytest.mark.parametrize("k", [1, 2, 3, 4, 6, 8])
-def test_constant_and_alternating_patterns(k):
-    n = 7
-    z, o, a = all_zeros(k, n), all_ones(k, n), alternating(k, n)
-    for x in (z, o, a):
-        assert x.dtype == np.uint8 and x.size == k * n
-    assert not z.any() and bits_to_labels(z, k).tolist() == [0] * n
-    assert bits_to_labels(o, k).tolist() == [2 ** k - 1] * n
-    assert a.tolist() == [i % 2 for i in range(k * n)]
-    labels = bits_to_labels(a, k)
-    if k % 2 == 0:  # 0101... in every label
-        assert set(labels.tolist()) == {int("01" * (k // 2), 2)}
-    else:  # labels alternate 0101..0 / 1010..1
-        assert labels[0::2].tolist() == [int(("01" * k)[:k], 2)] * len(labels[0::2])
-        assert labels[1::2].tolist() == [int(("10" * k)[:k], 2)] * len(labels[1::2])
-    assert all_zeros(k, 0).size == 0
-
-
-@pytest.mark.parametrize("k, r", [(1, 1), (1, 3), (2, 2), (4, 1), (4, 5), (8, 2)])
-def test_each_label_repeated(k, r):
-    labels = bits_to_labels(each_label_repeated(k, r), k)
-    assert labels.tolist() == [label for label in range(2 ** k) for _ in range(r)]
-
-
-@pytest.mark.parametrize("k", [1, 2, 3, 4, 8, 10])
-def test_walking_one(k):
-    labels = bits_to_labels(walking_one(k), k)
-    assert (hamming(labels, 0) == 1).all()  # exactly one 1 bit in every label
-    # Position of the 1, counted from the first-fed bit: 0, 1, ..., k-1, then back k-2, ..., 1.
-    positions = [k - 1 - int(label).bit_length() + 1 for label in labels]
-    expected = list(range(k)) + list(range(k - 2, 0, -1)) if k > 1 else [0]
-    assert positions == expected
-
-
-def test_pattern_front_door():
-    assert set(PATTERNS) == {"all_zeros", "all_ones", "alternating", "each_label_repeated",
-                             "walking_one"}
-    for name in PATTERNS:
-        for k in (1, 2, 4, 6):
-            for n in (0, 1, 5, 64, 100):
-                out = pattern(name, k, n)
-                assert out.dtype == np.uint8 and out.size == k * n, (name, k, n)
-    assert np.array_equal(pattern("alternating", 3, 5), alternating(3, 5))
-    # each_label_repeated: repeats = n // M when that is >= 1, else the first n labels.
-    assert np.array_equal(pattern("each_label_repeated", 2, 12), each_label_repeated(2, 3))
-    assert bits_to_labels(pattern("each_label_repeated", 4, 5), 4).tolist() == [0, 1, 2, 3, 4]
-    # walking_one repeats its period seamlessly.
-    walk = bits_to_labels(pattern("walking_one", 4, 14), 4)
-    assert walk.tolist() == [8, 4, 2, 1, 2, 4] * 2 + [8, 4]
-    with pytest.raises(UnknownNameError) as info:
-        pattern("walking_zero", 4, 4)
-    assert info.value.key is None and "walking_one" in info.value.known
-    with pytest.raises(ConfigError) as info:
-        pattern("all_ones", 4, -1)
-    assert info.value.key == "n_symbols"
-    with pytest.raises(ConfigError) as info:
-        each_label_repeated(2, 0)
-    assert info.value.key == "repeats"

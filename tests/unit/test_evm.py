@@ -1,8 +1,7 @@
 """EVM per the 3GPP definition, its limits, and the EVM-SNR relation in AWGN.
 
-Sources are named beside each check. "REF 6" is section 6 ("EVM") of the project leads'
-table of vetted reference values, which cites the original documents; values it marks [mem] are
-noted "from memory" here.
+Sources are named beside each check (document and section); "from memory" marks a section or
+value not read from the document, and computed check values say how they were computed.
 """
 
 import math
@@ -26,7 +25,8 @@ def test_ideal_symbols_have_zero_evm():
 
 
 def test_hand_computed_value():
-    # 3GPP definition (TS 38.101-2 Annex F.2; REF 6): sqrt(sum|z - i|^2 / (N P0)).
+    # 3GPP definition (TS 38.101-2 Annex F.2; the same form in TS 38.101-1 Annex F):
+    # sqrt(sum|z - i|^2 / (N P0)), P0 the average power of the ideal reference.
     # Errors 0.1, 0.1j, -0.2, 0 on unit-power QPSK: sum = 0.06, N = 4 -> sqrt(0.015) = 12.247 %;
     # peak 20 % at index 2; in dB 20 log10(0.12247) = -18.24 dB.
     err = np.array([0.1, 0.1j, -0.2, 0])
@@ -79,8 +79,10 @@ def test_equalise_removes_one_complex_gain():
 @pytest.mark.parametrize("snr_db, expected", [(10, 31.62), (15, 17.78), (20, 10.00),
                                               (30, 3.16)])
 def test_evm_matches_one_over_root_snr_for_16qam_in_awgn(snr_db, expected):
-    # REF 6, "EVM <-> SNR" (Shafik, Rahman & Islam, ICECE 2006): data-aided EVM in
-    # AWGN is 1/sqrt(SNR), SNR = Es/N0 with EVM normalised to the reference power. 16QAM from
+    # R. A. Shafik, M. S. Rahman, A. H. M. R. Islam, "On the extended relationships among EVM,
+    # BER and SNR as performance metrics", ICECE 2006 (where in the paper: from memory):
+    # data-aided EVM in AWGN is 1/sqrt(SNR), SNR = Es/N0 with EVM normalised to the reference
+    # power; the 2-decimal values are 100/sqrt(SNR) evaluated at each SNR. 16QAM from
     # the 3GPP table (unit average power), each point equally often so P0 = 1 exactly. Then
     # 2 sum|n|^2 / N0 ~ chi-square(2N), which gives the interval for the measured EVM.
     points = np.asarray(get_convention("3gpp", "16qam").points)
@@ -104,8 +106,9 @@ def test_evm_matches_one_over_root_snr_for_16qam_in_awgn(snr_db, expected):
                                                        ("64qam", 8.0, 21.94),
                                                        ("256qam", 3.5, 29.12)])
 def test_limits_and_their_snr(modulation, limit, snr_db):
-    # TS 38.104 6.5.2.2, Table 6.5.2.2-1 (REF 6, [doc]); the SNR each limit
-    # corresponds to by EVM = 1/sqrt(SNR) is given there to 2 decimals ([py]).
+    # 3GPP TS 38.104, 6.5.2.2, Table 6.5.2.2-1 (NR BS EVM limits); the SNR each limit
+    # corresponds to by EVM = 1/sqrt(SNR) (Shafik et al., ICECE 2006) is -20 log10(EVM),
+    # evaluated to 2 decimals.
     assert evm_limit(modulation) == limit == DEFAULT_EVM_LIMITS[modulation]
     assert snr_db_from_evm(limit) == pytest.approx(snr_db, abs=5e-3)
     assert evm_from_snr_db(snr_db_from_evm(limit)) == pytest.approx(limit, rel=1e-12)

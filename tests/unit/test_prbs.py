@@ -1,8 +1,7 @@
 """PRBS generator against ITU-T O.150 (05/96) clause 5 and the independent package pylfsr.
 
-Check values come from the project leads' vetted reference values (section 2, kept outside
-this repository); the clause of O.150 that defines each pattern
-is named beside each check. PRBS7 is not an O.150 pattern (common convention).
+The clause of O.150 that defines each pattern is named beside each check; computed check values
+say how they were computed. PRBS7 is not an O.150 pattern (common convention).
 """
 
 from __future__ import annotations
@@ -45,7 +44,7 @@ def prime_factors(m: int) -> list[int]:
     return out
 
 
-# (name, degree, tap, inverted, clause) as in the vetted reference values, sec. 2 (O.150 clause 5).
+# (name, degree, tap, inverted, clause): ITU-T O.150 (05/96) 5.1-5.8 (polynomial x^n + x^k + 1).
 O150_TABLE = [
     ("prbs7", 7, 6, False, None),  # not an O.150 clause-5 pattern (common convention)
     ("prbs9", 9, 5, False, "5.1"),
@@ -72,18 +71,21 @@ def test_table_matches_o150(name, degree, tap, inverted, clause):
 
 
 def test_prbs9_first_32_bits():
-    # reference values sec. 2, "first 32 bits, PRBS9" (computed); O.150 5.1 fixes this phase:
-    # the pattern starts at "the first ONE of 9 consecutive ONEs".
+    # Computed from the O.150 5.1 register model (Q1 <- Q5 xor Q9, output Q9 before the shift)
+    # from an all-ones register; O.150 5.1 fixes this phase: the pattern starts at "the first
+    # ONE of 9 consecutive ONEs".
     assert np.array_equal(prbs("prbs9", 32), bits("11111111100000111101111100010111"))
 
 
 def test_prbs9_feedback_tap_phase_is_offset_9():
-    # reference values sec. 2: the feedback bit as output gives the same sequence shifted by 9.
+    # Computed from the same register model with the feedback bit Q5 xor Q9 taken as the output:
+    # the same sequence, shifted by 9.
     assert np.array_equal(prbs("prbs9", 32, offset=9), bits("00000111101111100010111001100100"))
 
 
 def test_prbs15_first_32_bits_inverted_and_not():
-    # reference values sec. 2, "first 32 bits, PRBS15" (computed); O.150 5.3: PRBS15 is inverted.
+    # Computed from the O.150 5.3 register model (Q1..Q15 = 1, feedback Q14 xor Q15 into Q1,
+    # output Q15 before the shift); O.150 5.3: PRBS15 is transmitted inverted.
     assert np.array_equal(prbs("prbs15", 32), bits("00000000000000011111111111111011"))
     assert np.array_equal(raw("prbs15", 32), bits("11111111111111100000000000000100"))
 
@@ -115,8 +117,8 @@ def test_period_is_exactly_2n_minus_1(name):
 
 
 def _expected_longest(spec):
-    # reference values sec. 2 "run-length rule" (Golomb, Shift Register Sequences; citation from
-    # memory): the register output has one run of n ones and longest zero run n - 1;
+    # Run-length property of maximal-length sequences (S. W. Golomb, Shift Register Sequences;
+    # citation from memory): the register output has one run of n ones and longest zero run n - 1;
     # O.150's inversion swaps them.
     n = spec.degree
     ones, zeros = n, n - 1
@@ -131,13 +133,13 @@ def test_balance_and_runs_over_one_period(name, clause):
     spec = PRBS_PATTERNS[name]
     n, p = spec.degree, spec.period
     x = prbs(name, p)
-    # Balance (reference values sec. 2 run-length rule): 2^(n-1) ones vs 2^(n-1) - 1 zeros in the
-    # register output; the inverted patterns swap the counts.
+    # Balance (Golomb, Shift Register Sequences, from memory): 2^(n-1) ones vs 2^(n-1) - 1 zeros
+    # in the register output; the inverted patterns swap the counts.
     ones = int(x.sum())
     more, fewer = 2 ** (n - 1), 2 ** (n - 1) - 1
     assert (ones, p - ones) == ((fewer, more) if spec.inverted else (more, fewer))
-    # Longest runs per reference values sec. 2 (e.g. PRBS9: 9 ones / 8 zeros; PRBS15 and PRBS23,
-    # inverted: 15 zeros / 14 ones and 23 zeros / 22 ones).
+    # Longest runs (O.150 5.1-5.6 with the run property above; e.g. PRBS9: 9 ones / 8 zeros;
+    # PRBS15 and PRBS23, inverted: 15 zeros / 14 ones and 23 zeros / 22 ones).
     values, lengths = cyclic_runs(x)
     longest_ones, longest_zeros = _expected_longest(spec)
     assert lengths[values == 1].max() == longest_ones
@@ -235,3 +237,22 @@ def test_names_and_argument_errors():
     empty = prbs("prbs9", 0)
     assert empty.dtype == np.uint8 and empty.size == 0
     assert prbs("prbs9", 10).dtype == np.uint8
+
+
+def test_package_door_keeps_the_submodule_name_and_reexports_the_rest():
+    # ``modemverify.vectors.prbs`` is the submodule, however it is reached (binding the
+    # generator function under that name in the package would hide it from ``import ... as``).
+    import importlib
+
+    import modemverify.vectors as door
+    import modemverify.vectors.prbs as module
+
+    assert module is importlib.import_module("modemverify.vectors.prbs") is door.prbs
+    assert module.prbs is prbs
+    # the door lists each public name of its submodules once, bound to the same object
+    subs = [importlib.import_module(f"modemverify.vectors.{s}")
+            for s in ("channels", "coverage", "prbs", "strategies")]
+    public = [(m, name) for m in subs for name in m.__all__ if name != "prbs"]
+    assert sorted(door.__all__) == sorted(name for _, name in public)
+    for m, name in public:
+        assert getattr(door, name) is getattr(m, name), name

@@ -1,9 +1,7 @@
 """Measured spectra: Welch PSD, occupied and x-dB bandwidths, masks, ACLR.
 
-Sources are named beside each check. "REF 5" is section 5 ("Bandwidth") of the
-project leads' table of vetted reference values (kept outside this repository), which cites the
-original documents named beside each check here; values it marks
-[mem] are noted "from memory" here.
+Sources are named beside each check (document and section); "from memory" marks a section or
+value not read from the document, and computed check values say how they were computed.
 """
 
 import math
@@ -11,7 +9,7 @@ import math
 import numpy as np
 import pytest
 from hypothesis import given, settings, strategies as st
-from scipy import integrate
+from scipy import integrate, optimize, special
 
 from modemverify.dsp.psd import (MaskResult, aclr, channel_power, mask_check, mask_level_db,
                                  occupied_bandwidth, welch_psd, x_db_bandwidth)
@@ -69,9 +67,12 @@ def test_dc_is_not_removed():
 
 
 def test_welch_obw_of_rrc_qpsk():
-    # REF 5: 99 % occupied bandwidth of RRC alpha = 0.35 is 1.1667 Rs (theoretical
-    # PSD, [py]); the definition is ITU RR No. 1.153. Span 10 truncation moves the true value of
-    # the sampled signal to 1.1629 (PulseShape.occupied_bandwidth(truncated=True)), within 1 %.
+    # 99 % occupied bandwidth of RRC alpha = 0.35 is 1.1667 Rs, computed with scipy from the
+    # theoretical PSD (the raised-cosine spectrum, Proakis & Salehi, Digital Communications,
+    # ch. 9, from memory: numerical integration and a root find); the definition is ITU Radio
+    # Regulations No. 1.153 (0.5 % of the power beyond each limit). Span 10 truncation moves the
+    # true value of the sampled signal to 1.1629 (PulseShape.occupied_bandwidth(truncated=True)),
+    # within 1 %.
     rng = np.random.default_rng(20240917)
     p = PulseShape("rrc", 8, rolloff=0.35, span=10)
     x = p.shape_symbols(qpsk(rng, 1 << 18))
@@ -85,11 +86,29 @@ def test_welch_obw_of_rrc_qpsk():
     assert np.mean(s[band] * 8 / ref[band]) == pytest.approx(1.0, rel=0.01)
 
 
+def _dirichlet_obw(sps, fraction=0.99):
+    """99 % width (in Rs) of a sampled rectangular hold's spectrum over one sample-rate period,
+    by quadrature between the nulls at the multiples of Rs and a root find."""
+    spectrum = lambda v: special.diric(2 * np.pi * v / sps, sps) ** 2  # noqa: E731
+    nulls = np.arange(-sps // 2 + 1, sps // 2)
+    total = integrate.quad(spectrum, -sps / 2, sps / 2, points=nulls, limit=500)[0]
+
+    def short_of(w):
+        inner = [v for v in nulls if abs(v) < w / 2] or None
+        return integrate.quad(spectrum, -w / 2, w / 2, points=inner, limit=500)[0] / total \
+            - fraction
+
+    return optimize.brentq(short_of, 1.0, sps - 1.0, xtol=1e-10)
+
+
 def test_welch_obw_of_rectangular_bpsk():
-    # REF 5 (Sklar sec. 1.7.2, table from memory): 99 % width of the rect pulse is
-    # 20.57/Ts. A *sampled* hold at 64 sps has the aliased (Dirichlet) spectrum, whose 99 % width
-    # is 18.906/Ts (tails above the sample rate fold back into the band), so the estimate is
-    # held to that value; test_pulses checks that it tends to 20.57 as sps grows. Tolerance:
+    # 99 % width of the rect pulse is 20.57/Ts, computed numerically from S(f) = Ts sinc^2(f Ts)
+    # (Sklar, Digital Communications, 2nd ed., sec. 1.7.2, gives about 20.6/Ts; table from
+    # memory). A *sampled* hold at 64 sps has the aliased (Dirichlet) spectrum
+    # diric(2 pi f / sps, sps)^2, whose 99 % width is 18.906/Ts (tails above the sample rate fold
+    # back into the band; computed below with scipy.integrate.quad and scipy.optimize.brentq),
+    # so the estimate is held to that value; test_pulses checks that it tends to 20.57 as sps
+    # grows. Tolerance:
     # the tail power comes from symbol transitions, whose count fluctuates by 1/sqrt(n); over
     # seeds the estimate spreads by about +-0.5 % at 2^15 symbols.
     rng = np.random.default_rng(64)
@@ -98,12 +117,13 @@ def test_welch_obw_of_rectangular_bpsk():
     f, s = welch_psd(p.shape_symbols(bpsk(rng, 1 << 15)), sps)
     w, lo, hi = occupied_bandwidth(f, s)
     assert w == pytest.approx(p.occupied_bandwidth(truncated=True), rel=0.015)
-    assert p.occupied_bandwidth(truncated=True) == pytest.approx(18.906, abs=1e-3)
+    assert p.occupied_bandwidth(truncated=True) == pytest.approx(_dirichlet_obw(sps), rel=1e-6)
     assert w == pytest.approx(20.57, rel=0.12)
 
 
 def test_half_power_bandwidth_of_rectangular_bpsk():
-    # REF 5 (Sklar sec. 1.7.2, from memory): half-power width 0.886/Ts. On a Welch
+    # Half-power width 0.886/Ts, where sinc^2(f Ts) = 1/2 (Sklar, Digital Communications, 2nd
+    # ed., sec. 1.7.2, table from memory; value computed with a root find). On a Welch
     # estimate the peak is the largest of many noisy bins, biased upwards, which narrows the
     # result (x_db_bandwidth Notes): with ~2000 averages the bias is about 2 %.
     rng = np.random.default_rng(886)
@@ -176,7 +196,7 @@ def test_spectrum_argument_checks():
 @given(rolloff=st.floats(0.1, 1.0), sps_bit=st.sampled_from([2, 4, 8]),
        seed=st.integers(0, 2 ** 32 - 1))
 def test_qpsk_occupies_half_the_bandwidth_of_bpsk_at_the_same_bit_rate(rolloff, sps_bit, seed):
-    # Common practice (REF 5, "QPSK vs BPSK"): at a fixed bit rate QPSK has
+    # Common practice: at a fixed bit rate QPSK has
     # Ts = 2 Tb, so every bandwidth measure halves. Same pulse, same sample rate: BPSK carries
     # one bit per symbol at sps_bit samples, QPSK two bits at 2*sps_bit. Widths are compared in
     # units of the common sample rate.
@@ -272,7 +292,8 @@ def test_aclr_of_flat_spectrum_is_zero_db_and_channel_power_is_exact():
 
 
 def test_aclr_of_rectangular_pulse_matches_sinc_squared():
-    # S(f) = sinc^2(f Ts) (REF 5; Sklar sec. 1.7, from memory): main channel
+    # S(f) = Ts sinc^2(f Ts) (Proakis & Salehi, Digital Communications; Sklar, Digital
+    # Communications, 2nd ed., sec. 1.7; sections from memory): main channel
     # [-Rs/2, Rs/2] against the channels at 1 and 2 Rs, integrated with scipy.integrate.quad.
     # At 64 sps the sampled hold's spectrum is within 0.1 % of sinc^2 below 3 Rs.
     s2 = lambda v: np.sinc(v) ** 2  # noqa: E731

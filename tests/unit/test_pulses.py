@@ -1,9 +1,8 @@
 """Pulse shapes: taps against independent libraries, Nyquist and energy properties, spectra.
 
-Sources are named beside each check. "REF 5" is section 5 ("Bandwidth") of the
-project leads' table of vetted reference values (kept outside this repository), which cites the
-original documents named beside each check here; values it marks
-[mem] are noted "from memory" here. Independent implementations: scikit-commpy
+Sources are named beside each check (document and section); "from memory" marks a section or
+value not read from the document, and computed check values say how they were computed.
+Independent implementations: scikit-commpy
 (``commpy.filters.rrcosfilter``) and komm (``RaisedCosinePulse``, its ``root()``, and
 ``GaussianPulse``).
 """
@@ -283,8 +282,9 @@ def test_theoretical_psd_integrates_to_one(shape, kw):
 
 @pytest.mark.parametrize("alpha", [0.22, 0.35, 0.5, 1.0])
 def test_raised_cosine_spectrum_confined_and_nyquist_symmetric(alpha):
-    # REF 5, "RRC / RC absolute bandwidth": the spectrum is confined to
-    # |f| <= (1+alpha) Rs/2 (Proakis & Salehi ch. 9, from memory); and the Nyquist criterion in
+    # Standard raised-cosine result: the spectrum is confined to |f| <= (1+alpha) Rs/2, the
+    # absolute (100 %) bandwidth (Proakis & Salehi, Digital Communications, ch. 9, chapter from
+    # memory); and the Nyquist criterion in
     # frequency: X(f) + X(Rs - f) = X(0) on [0, Rs] (vestigial symmetry about Rs/2).
     p = PulseShape("rrc", 8, rolloff=alpha)
     edge = (1 + alpha) / 2
@@ -301,9 +301,13 @@ def test_raised_cosine_spectrum_confined_and_nyquist_symmetric(alpha):
 @pytest.mark.parametrize("alpha, obw", [(0.22, 1.0849), (0.25, 1.1031), (0.35, 1.1667),
                                         (0.5, 1.2680), (1.0, 1.6330)])
 def test_rrc_99_percent_occupied_bandwidth(alpha, obw):
-    # REF 5, "99 % occupied bandwidth, RRC" (values [py], 4 decimals); the
-    # definition (0.5 % of the power beyond each limit) is ITU Radio Regulations No. 1.153 /
-    # Rec. ITU-R SM.328. The absolute bandwidth (1 + alpha) Rs is NOT the 99 % bandwidth.
+    # 99 % occupied bandwidth of the theoretical PSD (the raised-cosine spectrum, which is the
+    # transmit PSD for i.i.d. zero-mean symbols; Proakis & Salehi ch. 9, from memory), computed
+    # independently with scipy (numerical integration of the spectrum and a root find), 4
+    # decimals; for alpha = 0.35 a Welch PSD of simulated RRC-shaped QPSK gives 1.168 Rs. The
+    # definition (0.5 % of the power beyond each limit) is ITU Radio Regulations No. 1.153,
+    # repeated in Rec. ITU-R SM.328 (from memory). The absolute bandwidth (1 + alpha) Rs is NOT
+    # the 99 % bandwidth.
     p = PulseShape("rrc", 8, rolloff=alpha)
     w = p.occupied_bandwidth(0.99)
     assert w == pytest.approx(obw, abs=5e-5)
@@ -320,9 +324,11 @@ def test_gaussian_occupied_bandwidth_closed_form():
 
 
 def test_rectangular_pulse_bandwidths():
-    # REF 5 (Sklar, Digital Communications, 2nd ed., sec. 1.7.2, table from
-    # memory; values [py]): main lobe holds 0.902823 of the power, first nulls at +-1/Ts
-    # (null-to-null 2/Ts), half-power width 0.886/Ts, 90 % width 1.697/Ts, 99 % 20.57/Ts.
+    # S(f) = Ts sinc^2(f Ts) (Sklar, Digital Communications, 2nd ed., sec. 1.7.2, bandwidth
+    # criteria; table from memory, where the 99 % width is given as about 20.6/Ts). Values
+    # computed from that spectrum: main lobe 0.902823 of the power (Si-function closed form and
+    # quadrature agree), first nulls at +-1/Ts (null-to-null 2/Ts), half-power width 0.886/Ts,
+    # 90 % width 1.697/Ts, 99 % 20.57/Ts (numerical integration and root finds).
     p = PulseShape("rectangular", 8)
     main = integrate.quad(lambda v: float(p.psd(np.array([v]))[0]), -1, 1)[0]
     assert main == pytest.approx(0.902823, abs=1e-6)
@@ -352,13 +358,15 @@ def test_truncated_rrc_spectrum_approaches_the_closed_form():
     p = PulseShape("rrc", 16, rolloff=0.35, span=64)
     f = np.linspace(-2, 2, 801)
     assert np.max(np.abs(p.psd(f, truncated=True) - p.psd(f))) < 2e-3
-    # REF 5: span 64, 16 samples/symbol gives 1.168 Rs in simulation ([py])
+    # the untruncated value is 1.1667 Rs (see test_rrc_99_percent_occupied_bandwidth); a Welch
+    # PSD of simulated QPSK with these taps (span 64, 16 samples/symbol) gives 1.168 Rs
     assert p.occupied_bandwidth(truncated=True) == pytest.approx(1.1667, abs=1e-3)
 
 
 def test_welch_obw_of_rrc_qpsk_matches_theory():
-    # REF 5: Welch PSD of simulated RRC-shaped QPSK (span 64, 16 sps) gives a 99 %
-    # width of 1.168 Rs against 1.1667 from the theoretical PSD.
+    # A Welch PSD of simulated RRC-shaped QPSK (span 64, 16 sps; numpy and scipy.signal.welch,
+    # computed independently of modemverify) gives a 99 % width of 1.168 Rs against 1.1667
+    # from the theoretical PSD.
     rng = np.random.default_rng(5150)
     p = PulseShape("rrc", 16, rolloff=0.35, span=64)
     x = p.shape_symbols(qpsk(rng, 1 << 16))

@@ -51,11 +51,16 @@ def test_rotation_by_odd_angle():
 
 def test_80211_vs_3gpp_16qam_is_reorder_and_inversion():
     # Derived from TS 38.211 5.1.4 and IEEE 802.11-2007 Table 17-9: 802.11 takes b0b1 for I and
-    # maps 0 to the negative side, so the tables differ by a bit reordering and inversion.
+    # b2b3 for Q, the first of each pair the sign (0 -> negative, 3GPP: 0 -> positive) and the
+    # second the magnitude (0 -> 3, 3GPP: 0 -> 1). So 802.11 bits (b0, b1, b2, b3) carry the
+    # inverted 3GPP bits (b0, b2, b1, b3): a swap of the middle bits and every bit inverted.
     rels = relate(get_convention("3gpp", "16qam").points,
                   get_convention("ieee802.11", "16qam").points)
-    assert rels and rels[0].permutation is not None
-    assert rels[0].mask
+    assert len(rels) == 1
+    r = rels[0]
+    assert (r.permutation, r.mask, r.conjugate, r.rotation_deg) == ((0, 2, 1, 3), 0b1111,
+                                                                     False, 0.0)
+    assert r.scale == pytest.approx(1.0)
 
 
 def test_different_point_set_has_no_relation():
