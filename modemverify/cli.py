@@ -17,7 +17,7 @@ from .compare import compare
 from .config import load_device
 from .demo import run_demo
 from .errors import AdapterError, ConfigError, UnknownNameError
-from .identify import identify, render_identification
+from .identify import identify
 from .oracles import ORACLES
 from .report.console import render_run
 from .report.html import write_report
@@ -227,9 +227,9 @@ def cmd_identify(args) -> int:
         print(f"modemverify: the device failed while being probed: {exc}", file=sys.stderr)
         return EXIT_FAIL
     if args.json:
-        print(json.dumps(info, indent=2))
+        print(json.dumps(info.to_json(), indent=2))
     else:
-        print(render_identification(info))
+        print(info.render())
     return EXIT_OK
 
 

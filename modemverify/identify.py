@@ -6,6 +6,8 @@ convention and the simplest transforms relating them.
 
 from __future__ import annotations
 
+from dataclasses import asdict, dataclass, field
+
 import numpy as np
 
 from .bench import open_bench
@@ -17,7 +19,53 @@ from .schemes.transforms import DEFAULT_TOLERANCE, relate
 from .spec import DeviceSpec
 
 
-def identify(spec: DeviceSpec, tolerance: float = DEFAULT_TOLERANCE, *, adapter=None) -> dict:
+@dataclass(frozen=True)
+class IdentifyResult:
+    """What :func:`identify` found; every field is always present (None where it does not
+    apply). :meth:`to_json` is the ``--json`` record, :meth:`render` the text."""
+
+    device: str
+    modulation: str
+    bits_per_symbol: int
+    #: how the table was probed: ``modulate`` or ``demodulate``
+    probe: str
+    #: label string -> [I, Q]
+    mapping: dict[str, list[float]]
+    #: mean |point|^2; None when a point is not finite
+    average_energy: float | None
+    #: 1/sqrt(average_energy): the factor that would give unit energy
+    normalisation: float | None
+    #: False when the point of some label depends on its neighbours
+    memoryless: bool
+    gray: bool
+    mean_neighbour_hamming: float | None
+    closest_convention: str | None = None
+    closest_source: str | None = None
+    #: the simplest descriptions of the device table in terms of the closest convention
+    relation: list[str] = field(default_factory=list)
+    relation_detail: list[dict] = field(default_factory=list)
+    scale: float | None = None
+    #: conventions the table equals exactly (up to a positive gain)
+    matches: list[str] = field(default_factory=list)
+    #: other conventions the table relates to, with their descriptions
+    others: dict[str, list[str]] = field(default_factory=dict)
+    label_order: str = "each label lists its bits in the order they are fed to modulate"
+
+    def __repr__(self) -> str:
+        what = (f"matches {', '.join(self.matches)}" if self.matches else
+                f"closest {self.closest_convention}" if self.closest_convention else
+                "no known convention")
+        return f"IdentifyResult({self.device!r}, {self.modulation}, {what})"
+
+    def to_json(self) -> dict:
+        return asdict(self)
+
+    def render(self) -> str:
+        return render_identification(self)
+
+
+def identify(spec: DeviceSpec, tolerance: float = DEFAULT_TOLERANCE, *,
+             adapter=None) -> IdentifyResult:
     """Measure and describe the device's mapping; raises AdapterError if the device fails.
 
     ``adapter`` is an already-open adapter to use instead of opening the spec's device.
@@ -31,53 +79,41 @@ def identify(spec: DeviceSpec, tolerance: float = DEFAULT_TOLERANCE, *, adapter=
     pts = table.points
     finite = bool(np.all(np.isfinite(pts)))
     distinct = all_distinct(pts)
-    out: dict = {
-        "device": spec.name,
-        "modulation": spec.scheme.modulation,
-        "bits_per_symbol": k,
-        "label_order": "each label lists its bits in the order they are fed to modulate",
-        "probe": table.source,
-        "mapping": {label_string(l, k): [float(p.real), float(p.imag)] for l, p in enumerate(pts)},
-        "average_energy": float(np.mean(np.abs(pts) ** 2)) if finite else None,
-        "memoryless": bool(np.all(table.spread <= tolerance)),
-    }
+    energy = float(np.mean(np.abs(pts) ** 2)) if finite else None
     if distinct and k > 1:
         i, j = nearest_neighbour_pairs(pts, MEASURED_RTOL)
         h = hamming(i, j)
-        out["gray"] = bool(np.all(h == 1))
-        out["mean_neighbour_hamming"] = float(h.mean())
+        gray, mean_h = bool(np.all(h == 1)), float(h.mean())
     else:
-        out["gray"] = bool(distinct)
-        out["mean_neighbour_hamming"] = 1.0 if distinct else None
-    if out["average_energy"]:
-        out["normalisation"] = float(1 / np.sqrt(out["average_energy"]))
+        gray, mean_h = bool(distinct), (1.0 if distinct else None)
+    found = dict(
+        device=spec.name, modulation=spec.scheme.modulation, bits_per_symbol=k,
+        probe=table.source,
+        mapping={label_string(l, k): [float(p.real), float(p.imag)] for l, p in enumerate(pts)},
+        average_energy=energy, normalisation=float(1 / np.sqrt(energy)) if energy else None,
+        memoryless=bool(np.all(table.spread <= tolerance)), gray=gray,
+        mean_neighbour_hamming=mean_h)
     candidates = []
     for conv in conventions_for(spec.scheme.modulation):
         rels = relate(conv.points, pts, tolerance) if distinct else []
-        if not rels:
-            continue
-        candidates.append((rels[0].cost, conv, rels))
+        if rels:
+            candidates.append((rels[0].cost, conv, rels))
     if not candidates:
-        out["closest_convention"] = None
-        out["relation"] = []
-        out["matches"] = []
-        return out
+        return IdentifyResult(**found)
     best_cost = min(c for c, _, _ in candidates)
     closest = [(conv, rels) for c, conv, rels in candidates if c == best_cost]
     conv, rels = closest[0]
-    out["closest_convention"] = conv.name
-    out["closest_source"] = conv.source
-    out["relation"] = [r.describe() for r in rels]
-    out["relation_detail"] = [r.to_json() for r in rels]
-    out["scale"] = rels[0].scale
-    out["matches"] = [c.name for c, rels_ in closest if best_cost == 0]
-    out["others"] = {c.name: [r.describe() for r in rr] for _, c, rr in candidates
-                     if c.name != conv.name}
-    return out
+    return IdentifyResult(
+        **found, closest_convention=conv.name, closest_source=conv.source,
+        relation=[r.describe() for r in rels], relation_detail=[r.to_json() for r in rels],
+        scale=rels[0].scale, matches=[c.name for c, _ in closest if best_cost == 0],
+        others={c.name: [r.describe() for r in rr] for _, c, rr in candidates
+                if c.name != conv.name})
 
 
-def render_identification(info: dict) -> str:
+def render_identification(result: IdentifyResult) -> str:
     """Human-readable text of :func:`identify`'s result."""
+    info = result.to_json()
     k = info["bits_per_symbol"]
     lines = [f"Device {info['device']}: {info['modulation']}, {k} bits/symbol "
              f"(table probed through {info['probe']})",
@@ -88,7 +124,7 @@ def render_identification(info: dict) -> str:
     lines.append(f"Gray: {'yes' if gray else 'no'}"
                  + (f" (mean neighbour Hamming distance {info['mean_neighbour_hamming']:.3f})"
                     if info.get("mean_neighbour_hamming") is not None else ""))
-    if info.get("average_energy") is not None:
+    if info["normalisation"]:
         lines.append(f"Average symbol energy: {info['average_energy']:.6g} "
                      f"(normalisation 1/{1 / info['normalisation']:.6g})")
     if not info["memoryless"]:

@@ -153,7 +153,7 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
     ...                      "scheme": {"modulation": "qpsk", "convention": "3gpp"}})
     >>> result = check(spec)
     >>> result.ok, sorted(result.counts())
-    (True, ['pass'])
+    (True, ['pass', 'skipped'])
     """
     spec = device if isinstance(device, DeviceSpec) else load_device(device)
     t0 = time.perf_counter()
@@ -193,9 +193,10 @@ def check_object(device, *, modulation: str, convention: str, samples_per_symbol
     Examples
     --------
     >>> from modemverify.schemes.conventions import get_convention
+    >>> from modemverify.schemes.labels import bits_to_labels
     >>> class Mapper:
     ...     def modulate(self, bits):
-    ...         return get_convention("3gpp", "qpsk").modulate(bits)
+    ...         return get_convention("3gpp", "qpsk").points[bits_to_labels(bits, 2)]
     >>> result = check_object(Mapper(), modulation="qpsk", convention="3gpp")
     >>> [v.name for v in result.verdicts if v.outcome == "fail"]
     []

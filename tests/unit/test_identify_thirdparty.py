@@ -79,9 +79,9 @@ def test_identify_reports_library_table_exactly(name, mod, make):
     conv = "dvb-s2" if mod == "8psk" else "3gpp"
     info = identify(make_spec(mod, conv), adapter=PythonAdapter(dev))
     expected = dev.expected_table()
-    assert set(info["mapping"]) == set(expected)
+    assert set(info.mapping) == set(expected)
     for label, point in expected.items():
-        assert info["mapping"][label] == pytest.approx([point.real, point.imag], abs=1e-12)
+        assert info.mapping[label] == pytest.approx([point.real, point.imag], abs=1e-12)
     # Gray flag against a brute-force check on the library's own table (common practice
     # definition: nearest neighbours differ in one bit)
     pts = np.array([expected[l] for l in sorted(expected)])
@@ -90,9 +90,11 @@ def test_identify_reports_library_table_exactly(name, mod, make):
     np.fill_diagonal(d, np.inf)
     nn = d <= d.min() * (1 + 1e-6)
     brute_gray = all(bin(labs[i] ^ labs[j]).count("1") == 1 for i, j in zip(*np.nonzero(nn)))
-    assert info["gray"] == brute_gray
-    assert info["average_energy"] == pytest.approx(np.mean(np.abs(pts) ** 2))
-    assert info["closest_convention"] is not None  # every one is a relabelling of a known table
+    assert info.gray == brute_gray
+    assert info.average_energy == pytest.approx(np.mean(np.abs(pts) ** 2))
+    # every one is a relabelling of a known unit-energy table, by a gain of the library's scale
+    assert info.closest_convention is not None and info.relation
+    assert abs(info.scale) == pytest.approx(np.sqrt(np.mean(np.abs(pts) ** 2)))
 
 
 def test_komm_reflected_16qam_is_80211_up_to_scale():
@@ -100,8 +102,8 @@ def test_komm_reflected_16qam_is_80211_up_to_scale():
     # ascending Gray levels, as IEEE 802.11-2007 Table 17-9 does (and modemverify's generic gray).
     dev = KommDevice(komm.QAMConstellation(16), komm.ReflectedRectangularLabeling((2, 2)))
     info = identify(make_spec("16qam", "3gpp"), adapter=PythonAdapter(dev))
-    assert set(info["matches"]) == {"ieee802.11", "gray"}
-    assert info["normalisation"] == pytest.approx(1 / np.sqrt(10))
+    assert set(info.matches) == {"ieee802.11", "gray"}
+    assert info.normalisation == pytest.approx(1 / np.sqrt(10))
 
 
 def test_check_flags_library_that_does_not_follow_the_claim():
