@@ -2,8 +2,8 @@
 
 Both ends of the pipe use this module: the harness (``adapter: process``, in
 :mod:`modemverify.adapters.process`) and Python device processes, through :func:`serve`. It
-needs the standard library and numpy only. The same sample formats are used by the
-``sharedlib`` and ``recorded`` adapters.
+needs the standard library, numpy and :mod:`modemverify.dsp.formats` only (the sample codec,
+itself numpy only), so a device process imports no more than that.
 
 Frames
 ------
@@ -47,6 +47,8 @@ Sample formats
     interleaved I, Q as little-endian int16 in Q15: value = integer * full_scale / 32768;
     4 bytes per complex sample. Encoding rounds to nearest and saturates at -32768..32767, as
     an ADC would.
+
+Both ends encode and decode them with :mod:`modemverify.dsp.formats`, the one sample codec.
 """
 
 from __future__ import annotations
@@ -59,6 +61,10 @@ from typing import BinaryIO
 
 import numpy as np
 
+from ..dsp.formats import (WIRE_FORMATS, check_format, check_full_scale, encode_samples,
+                           from_format)
+from ..errors import ConfigError
+
 PROTOCOL_VERSION = 1
 MAGIC = b"MV"
 HEADER = struct.Struct("<2sBcIQ")
@@ -69,11 +75,6 @@ HELLO, MODULATE, DEMODULATE, SOFT, RESULT, ERROR, QUIT = (b"H", b"M", b"D", b"S"
 FRAME_NAMES = {HELLO: "hello", MODULATE: "modulate", DEMODULATE: "demodulate",
                SOFT: "demodulate_soft", RESULT: "result", ERROR: "error", QUIT: "quit"}
 REQUEST_OF_CALL = {"modulate": MODULATE, "demodulate": DEMODULATE, "demodulate_soft": SOFT}
-
-#: sample format -> bytes per complex sample
-SAMPLE_FORMATS: dict[str, int] = {"float32": 8, "int16": 4}
-_COMPONENT_DTYPE = {"float32": np.dtype("<f4"), "int16": np.dtype("<i2")}
-Q15 = 32768.0
 
 
 class WireError(Exception):
@@ -100,47 +101,6 @@ def unpack_header(raw: bytes) -> tuple[bytes, int, int]:
     return ftype, seq, length
 
 
-# -- sample formats --------------------------------------------------------------------------
-
-def check_sample_format(fmt: str, full_scale: float = 1.0) -> None:
-    if fmt not in SAMPLE_FORMATS:
-        raise ValueError(f"sample_format={fmt!r}: expected one of {', '.join(SAMPLE_FORMATS)}")
-    if not (isinstance(full_scale, (int, float)) and not isinstance(full_scale, bool)
-            and np.isfinite(full_scale) and full_scale > 0):
-        raise ValueError(f"full_scale={full_scale!r}: expected a number > 0")
-
-
-def encode_samples(samples: np.ndarray, fmt: str, full_scale: float = 1.0) -> np.ndarray:
-    """Complex samples -> interleaved I, Q components (a 1-D float32 or int16 LE array)."""
-    z = np.asarray(samples).reshape(-1)
-    out = np.empty(2 * z.size, dtype=_COMPONENT_DTYPE[fmt])
-    if fmt == "float32":
-        out[0::2] = z.real
-        out[1::2] = z.imag
-        return out
-    scale = Q15 / full_scale
-    iq = np.empty(2 * z.size)
-    iq[0::2] = z.real
-    iq[1::2] = z.imag
-    iq *= scale
-    np.rint(iq, out=iq)
-    np.clip(iq, -32768, 32767, out=iq)
-    out[:] = iq
-    return out
-
-
-def decode_samples(raw, fmt: str, full_scale: float = 1.0) -> np.ndarray:
-    """Interleaved I, Q components (bytes or an array) -> complex128 samples."""
-    comp = (np.frombuffer(raw, dtype=_COMPONENT_DTYPE[fmt]) if not isinstance(raw, np.ndarray)
-            else raw.astype(_COMPONENT_DTYPE[fmt], copy=False))
-    if comp.size % 2:
-        raise WireError(f"{comp.size} sample components; I and Q come in pairs")
-    z = comp[0::2].astype(np.float64) + 1j * comp[1::2].astype(np.float64)
-    if fmt == "int16":
-        z *= full_scale / Q15
-    return z
-
-
 # -- hello -----------------------------------------------------------------------------------
 
 def parse_device_hello(payload: bytes) -> dict:
@@ -159,14 +119,13 @@ def parse_device_hello(payload: bytes) -> dict:
     if (not isinstance(caps, list) or not caps or not all(c in known for c in caps)):
         raise WireError(f"hello capabilities={caps!r}: expected a non-empty list drawn from "
                         f"{', '.join(known)}")
-    fmt = info.get("sample_format", "float32")
-    full_scale = info.get("full_scale", 1.0)
     try:
-        check_sample_format(fmt, full_scale)
-    except ValueError as exc:
-        raise WireError(f"hello {exc}") from None
+        fmt = check_format(info.get("sample_format", "float32"), WIRE_FORMATS)
+        full_scale = check_full_scale(info.get("full_scale", 1.0))
+    except ConfigError as exc:
+        raise WireError(f"hello {exc.raw_message}") from None
     name = info.get("name", "")
-    return {**info, "capabilities": caps, "sample_format": fmt, "full_scale": float(full_scale),
+    return {**info, "capabilities": caps, "sample_format": fmt, "full_scale": full_scale,
             "name": str(name)}
 
 
@@ -237,7 +196,8 @@ def serve(factory, *, sample_format: str = "float32", full_scale: float = 1.0,
     device runs, so a stray ``print`` cannot corrupt the protocol. An exception raised by a call
     becomes an ``E`` frame with code -1 and the exception's text; the process keeps serving.
     """
-    check_sample_format(sample_format, full_scale)
+    check_format(sample_format, WIRE_FORMATS)
+    full_scale = check_full_scale(full_scale)
     rd = stdin or os.fdopen(os.dup(0), "rb", buffering=0)
     if stdout is None:
         wr = os.fdopen(os.dup(1), "wb")
@@ -255,7 +215,7 @@ def serve(factory, *, sample_format: str = "float32", full_scale: float = 1.0,
     device = factory(**(hello.get("params") or {}))
     calls = [c for c in REQUEST_OF_CALL if callable(getattr(device, c, None))]
     reply = {"protocol": PROTOCOL_VERSION, "capabilities": calls, "sample_format": sample_format,
-             "full_scale": float(full_scale), "name": name or type(device).__name__}
+             "full_scale": full_scale, "name": name or type(device).__name__}
     write_frame(wr, HELLO, seq, json.dumps(reply).encode("utf-8"))
     while True:
         frame = read_frame(rd)
@@ -271,11 +231,11 @@ def serve(factory, *, sample_format: str = "float32", full_scale: float = 1.0,
                 out = encode_samples(np.asarray(device.modulate(bits), dtype=np.complex128),
                                      sample_format, full_scale)
             elif ftype == DEMODULATE and "demodulate" in calls:
-                z = decode_samples(payload, sample_format, full_scale)
+                z = from_format(payload, sample_format, full_scale)
                 out = np.asarray(device.demodulate(z)).astype(np.uint8)
             elif ftype == SOFT and "demodulate_soft" in calls:
                 noise_var = struct.unpack("<d", payload[:8])[0]
-                z = decode_samples(payload[8:], sample_format, full_scale)
+                z = from_format(payload[8:], sample_format, full_scale)
                 out = np.asarray(device.demodulate_soft(z, noise_var)).astype("<f4")
             else:
                 raise WireError(f"this device does not handle {FRAME_NAMES[ftype]} frames")

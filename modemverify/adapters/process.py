@@ -31,6 +31,7 @@ from functools import partial
 
 import numpy as np
 
+from ..dsp.formats import SAMPLE_FORMATS, encode_samples, from_format
 from ..errors import AdapterError, ConfigError, DeviceCrashed, DeviceOutputError, DeviceTimeout
 from . import _wire
 from .base import ModemAdapter, summarise_bits, summarise_samples
@@ -428,21 +429,20 @@ class ProcessAdapter(ModemAdapter):
         return payload
 
     def _samples(self, payload, call: str, describe) -> np.ndarray:
-        size = _wire.SAMPLE_FORMATS[self.hello["sample_format"]]
+        size = SAMPLE_FORMATS[self.hello["sample_format"]].bytes_per_sample
         if len(payload) % size:
             raise DeviceOutputError(f"returned {len(payload)} bytes, not a whole number of "
                                     f"{self.hello['sample_format']} samples ({size} bytes each)",
                                     call=call, input_summary=describe())
-        return _wire.decode_samples(payload, self.hello["sample_format"],
-                                    self.hello["full_scale"])
+        return from_format(payload, self.hello["sample_format"], self.hello["full_scale"])
 
     def _encode(self, samples) -> np.ndarray:
-        return _wire.encode_samples(samples, self.hello["sample_format"], self.hello["full_scale"])
+        return encode_samples(samples, self.hello["sample_format"], self.hello["full_scale"])
 
     def modulate(self, bits):
         bits = np.ascontiguousarray(bits, dtype=np.uint8)
         describe = partial(summarise_bits, bits)  # formatted only for an error message
-        size = _wire.SAMPLE_FORMATS[self.hello["sample_format"]]
+        size = SAMPLE_FORMATS[self.hello["sample_format"]].bytes_per_sample
         max_reply = 16 * (bits.size // self.k + 64) * self.sps * size
         payload = self._call("modulate", [bits], describe, max_reply)
         return self._samples(payload, "modulate", describe)

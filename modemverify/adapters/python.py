@@ -16,7 +16,9 @@ from pathlib import Path
 
 import numpy as np
 
-from ..errors import AdapterError, ConfigError
+from ..dsp.formats import (PYTHON_FORMATS, SAMPLE_FORMATS, check_format, check_full_scale,
+                           from_format, to_format)
+from ..errors import AdapterError, ConfigError, DeviceOutputError
 from .base import CAPABILITIES, ModemAdapter
 
 
@@ -60,30 +62,19 @@ def load_target(target: str, base_dir: Path, *, file: str | None = None):
 
 def validate_format_keys(spec) -> tuple[str, float]:
     """``sample_format`` and ``full_scale`` of a device file, checked."""
-    from ..dsp.formats import SAMPLE_FORMATS
-
-    fmt = spec.extra.get("sample_format", "complex128")
-    if fmt not in SAMPLE_FORMATS:
-        raise ConfigError(f"sample_format={fmt!r}: expected one of {', '.join(SAMPLE_FORMATS)}",
-                          file=spec.file, key="sample_format")
-    full_scale = spec.extra.get("full_scale", 1.0)
-    if isinstance(full_scale, bool) or not isinstance(full_scale, (int, float)) or \
-            not full_scale > 0:
-        raise ConfigError(f"full_scale={full_scale!r}: expected a positive number",
-                          file=spec.file, key="full_scale")
-    if "full_scale" in spec.extra and not fmt.startswith("int"):
-        raise ConfigError(f"full_scale={full_scale!r} applies to sample_format int16 or int8",
-                          file=spec.file, key="full_scale")
-    return fmt, float(full_scale)
+    fmt = check_format(spec.extra.get("sample_format", "complex128"), PYTHON_FORMATS,
+                       file=spec.file)
+    full_scale = check_full_scale(spec.extra.get("full_scale", 1.0), file=spec.file)
+    if "full_scale" in spec.extra and not SAMPLE_FORMATS[fmt].integer:
+        raise ConfigError(f"full_scale={spec.extra['full_scale']!r} applies to sample_format "
+                          f"int16 or int8", file=spec.file, key="full_scale")
+    return fmt, full_scale
 
 
 def decode_output(out, fmt: str, full_scale: float):
     """A device's output in ``fmt`` as complex128 (integer codes must be integers)."""
-    from ..dsp.formats import from_format
-    from ..errors import DeviceOutputError
-
     arr = np.asarray(out)
-    if fmt.startswith("int") and not np.issubdtype(arr.dtype, np.integer):
+    if SAMPLE_FORMATS[fmt].integer and not np.issubdtype(arr.dtype, np.integer):
         raise DeviceOutputError(f"returned dtype {arr.dtype}; sample_format {fmt} expects "
                                 f"interleaved integer I, Q codes", call="modulate")
     try:
@@ -164,8 +155,6 @@ class PythonAdapter(ModemAdapter):
     def _encode(self, samples):
         if self.sample_format == "complex128":
             return samples
-        from ..dsp.formats import to_format
-
         return to_format(samples, self.sample_format, self.full_scale)[0]
 
     def close(self):

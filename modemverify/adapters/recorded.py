@@ -9,7 +9,7 @@ recorded sequences or a contiguous, symbol-aligned part of one (so any prefix of
 run works), and raises :class:`~modemverify.errors.AdapterError` "no recording for these bits"
 otherwise. ``demodulate(samples)`` replays the same way when the recording says it answers
 demodulate calls (``calls: [modulate, demodulate]``), matching the samples after conversion to
-float32 (or to the recording's int16). Nothing is synthesised from a recording, so a recorded
+float32 (for an int16 recording: to int16 codes at full scale 1). Nothing is synthesised from a recording, so a recorded
 device supports only checks whose vectors are in it: ``finite`` needs every label once
 (ascending), ``mapping``, ``gray`` and ``energy`` the order-2 de Bruijn probe, ``length`` the
 PRBS15 prefixes it asks for; checks that draw fresh random vectors (``roundtrip``'s generated
@@ -29,9 +29,11 @@ from pathlib import Path
 
 import numpy as np
 
+from ..dsp.formats import check_full_scale, encode_samples
 from ..errors import AdapterError, ConfigError
 from ..schemes.conventions import MODULATIONS
 from ..schemes.labels import bits_to_labels
+from ..vectors.recording import read_vector_set
 from .base import ModemAdapter, summarise_bits, summarise_samples
 
 SIGMF_SUFFIXES = (".sigmf-meta", ".sigmf-data", ".sigmf")
@@ -39,8 +41,8 @@ SIGMF_BITS_KEY = "modemverify:bits"
 SIGMF_DATATYPES = ("cf32_le", "ci16_le")
 
 
-def _segments_from_sigmf(path: Path, spec, bits_file: Path | None):
-    """[(name, bits, samples)] of a SigMF recording."""
+def _segments_from_sigmf(path: Path, spec, bits_file: Path | None, full_scale: float):
+    """[(name, bits, samples)] of a SigMF recording; ``full_scale`` scales ``ci16_le``."""
     file = spec.file
     try:
         import sigmf
@@ -69,7 +71,7 @@ def _segments_from_sigmf(path: Path, spec, bits_file: Path | None):
                           f"expected 1", file=file, key="recording")
     data = np.asarray(rec.read_samples(), dtype=np.complex128).reshape(-1)
     if dtype == "ci16_le":  # sigmf scales integers to [-1, 1): apply the device's full scale
-        data = data * float(spec.extra.get("full_scale", 1.0))
+        data = data * full_scale
     k = spec.scheme.bits_per_symbol
     sps = spec.scheme.samples_per_symbol
     if bits_file is not None:
@@ -123,9 +125,10 @@ def _read_bits(path: Path, spec) -> np.ndarray:
 
 
 def _load(spec):
-    """(segments as [(name, bits, samples)], calls, full_scale, sample_format) of a spec."""
-    from ..vectors.recording import read_vector_set
+    """(segments as [(name, bits, samples)], calls, sample_format) of a spec.
 
+    ``sample_format`` is the vector set's (``float32`` or ``int16``), or ``"sigmf"``.
+    """
     file = spec.file
     x = spec.extra
     rec = x.get("recording")
@@ -143,13 +146,9 @@ def _load(spec):
         if not bits_file.is_file():
             raise ConfigError(f"bits={x['bits']!r}: no such file {bits_file}", file=file,
                               key="bits")
-    full_scale = x.get("full_scale", 1.0)
-    if (not isinstance(full_scale, (int, float)) or isinstance(full_scale, bool)
-            or full_scale <= 0):
-        raise ConfigError(f"full_scale={full_scale!r}: expected a number > 0", file=file,
-                          key="full_scale")
+    full_scale = check_full_scale(x.get("full_scale", 1.0), file=file)
     if path.suffix in SIGMF_SUFFIXES:
-        return _segments_from_sigmf(path, spec, bits_file), ("modulate",), "sigmf"
+        return _segments_from_sigmf(path, spec, bits_file, full_scale), ("modulate",), "sigmf"
     if path.suffix not in (".yaml", ".yml"):
         raise ConfigError(f"recording={rec!r}: expected a vector-set header (.yaml) or a SigMF "
                           f"file ({', '.join(SIGMF_SUFFIXES)})", file=file, key="recording")
@@ -196,12 +195,9 @@ class RecordedAdapter(ModemAdapter):
 
     @staticmethod
     def _key(samples: np.ndarray, sample_format: str) -> bytes:
-        """Bytes the demodulate replay matches on: float32 (or int16 for int16 recordings)."""
-        if sample_format == "int16":
-            from ._wire import encode_samples
-
-            return encode_samples(samples, "int16").tobytes()
-        return np.asarray(samples, dtype=np.complex64).tobytes()
+        """Bytes the demodulate replay matches on: float32, or int16 codes at full scale 1."""
+        fmt = "int16" if sample_format == "int16" else "float32"
+        return encode_samples(samples, fmt).tobytes()
 
     @classmethod
     def validate_spec(cls, spec) -> None:

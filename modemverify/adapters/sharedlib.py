@@ -34,8 +34,9 @@ import re
 
 import numpy as np
 
+from ..dsp.formats import (SAMPLE_FORMATS, WIRE_FORMATS, check_format, check_full_scale,
+                           encode_samples, from_format)
 from ..errors import AdapterError, ConfigError, DeviceOutputError
-from ._wire import SAMPLE_FORMATS, decode_samples, encode_samples
 from .base import ModemAdapter, summarise_bits, summarise_samples
 
 SYMBOL_KEYS = ("modulate", "demodulate", "demodulate_soft")
@@ -73,19 +74,12 @@ def _options(spec):
     if not set(symbols) & {"modulate", "demodulate"}:
         raise ConfigError("symbols: name at least one of modulate and demodulate", file=file,
                           key="symbols")
-    fmt = x.get("sample_format", "float32")
-    if fmt not in SAMPLE_FORMATS:
-        raise ConfigError(f"sample_format={fmt!r}: expected one of {', '.join(SAMPLE_FORMATS)}",
-                          file=file, key="sample_format")
+    fmt = check_format(x.get("sample_format", "float32"), WIRE_FORMATS, file=file)
     full_scale = x.get("full_scale", 1.0)
     if "full_scale" in x and fmt != "int16":
         raise ConfigError(f"full_scale={full_scale!r} applies to sample_format: int16 only",
                           file=file, key="full_scale")
-    if (not isinstance(full_scale, (int, float)) or isinstance(full_scale, bool)
-            or not np.isfinite(full_scale) or full_scale <= 0):
-        raise ConfigError(f"full_scale={full_scale!r}: expected a number > 0 (the value of the "
-                          f"integer 32768)", file=file, key="full_scale")
-    return path, dict(symbols), fmt, float(full_scale)
+    return path, dict(symbols), fmt, check_full_scale(full_scale, file=file)
 
 
 class SharedLibAdapter(ModemAdapter):
@@ -110,7 +104,7 @@ class SharedLibAdapter(ModemAdapter):
         self.full_scale = float(full_scale)
         self.name = name
         self.capabilities = frozenset(functions)
-        self._component = np.float32 if sample_format == "float32" else np.int16
+        self._component = SAMPLE_FORMATS[sample_format].dtype
 
     @classmethod
     def validate_spec(cls, spec) -> None:
@@ -174,7 +168,7 @@ class SharedLibAdapter(ModemAdapter):
         ret = self.functions["modulate"](bits.ctypes.data, bits.size, out.ctypes.data, capacity)
         n = self._check("modulate", ret, capacity, out, 2 * capacity, "samples",
                         lambda: summarise_bits(bits))
-        return decode_samples(out[:2 * n], self.sample_format, self.full_scale)
+        return from_format(out[:2 * n], self.sample_format, self.full_scale)
 
     def _iq(self, samples) -> np.ndarray:
         return np.ascontiguousarray(encode_samples(samples, self.sample_format, self.full_scale))

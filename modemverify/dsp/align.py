@@ -52,8 +52,8 @@ import numpy as np
 import scipy.fft
 from scipy import optimize, signal
 
-from modemverify._checks import as_1d_complex
 from modemverify.errors import ConfigError
+from .._checks import as_1d_complex
 
 __all__ = ["Alignment", "estimate_alignment", "apply_alignment"]
 
@@ -146,8 +146,8 @@ def estimate_alignment(device, reference, *, max_delay: int | None = None,
     >>> round(a.delay_samples, 3), complex(round(a.gain.real, 3), round(a.gain.imag, 3))
     (7.0, 0.5j)
     """
-    dev = _as_1d_complex(device, "device")
-    ref = _as_1d_complex(reference, "reference")
+    dev = as_1d_complex(device, "device", non_empty=True)
+    ref = as_1d_complex(reference, "reference", non_empty=True)
     if max_delay is not None:
         if isinstance(max_delay, bool) or not isinstance(max_delay, Integral) or max_delay < 0:
             raise ConfigError(f"expected a non-negative integer, got {max_delay!r}",
@@ -238,7 +238,7 @@ def apply_alignment(device, alignment: Alignment, length: int) -> np.ndarray:
     -------
     numpy.ndarray of complex128
     """
-    dev = _as_1d_complex(device, "device")
+    dev = as_1d_complex(device, "device", non_empty=True)
     if isinstance(length, bool) or not isinstance(length, Integral) or length < 0:
         raise ConfigError(f"expected a non-negative integer, got {length!r}", key="length")
     gain = complex(alignment.gain)
@@ -464,7 +464,3 @@ def _fft_advance(x: np.ndarray, frac: float) -> np.ndarray:
     spec *= ramp
     y = scipy.fft.ifft(spec, overwrite_x=True)
     return y[_FFT_PAD:_FFT_PAD + n]
-
-
-def _as_1d_complex(x, name: str) -> np.ndarray:
-    return as_1d_complex(x, name, non_empty=True)

@@ -24,8 +24,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from modemverify._checks import as_1d_complex
 from modemverify.errors import ConfigError, UnknownNameError
+from .._checks import as_1d_complex
 
 __all__ = [
     "DEFAULT_EVM_LIMITS",
@@ -115,8 +115,8 @@ def evm(measured_symbols, ideal_symbols, labels=None, *, equalise: bool = False)
     >>> round(r.rms_percent, 6), r.peak_index          # sqrt(0.01 / 4) = 5 %
     (5.0, 0)
     """
-    z = _as_1d_complex(measured_symbols, "measured_symbols")
-    i = _as_1d_complex(ideal_symbols, "ideal_symbols")
+    z = as_1d_complex(measured_symbols, "measured_symbols")
+    i = as_1d_complex(ideal_symbols, "ideal_symbols")
     if z.size == 0 or z.size != i.size:
         raise ConfigError(f"expected measured and ideal symbols of the same non-zero length, "
                           f"got {z.size} and {i.size}", key="measured_symbols")
@@ -202,7 +202,3 @@ def evm_from_snr_db(snr_db: float) -> float:
     if not math.isfinite(v):
         raise ConfigError(f"expected a finite SNR in dB, got {snr_db!r}", key="snr_db")
     return 100.0 * 10.0 ** (-v / 20.0)
-
-
-def _as_1d_complex(x, name: str) -> np.ndarray:
-    return as_1d_complex(x, name)

@@ -22,8 +22,8 @@ from numbers import Integral, Real
 import numpy as np
 from scipy import signal
 
-from modemverify._checks import as_1d_complex
 from modemverify.errors import ConfigError
+from .._checks import as_1d_complex
 
 __all__ = [
     "welch_psd",
@@ -103,7 +103,7 @@ def welch_psd(samples, sps: int, *, nperseg: int | None = None, averages_min: in
     and ``detrend=False`` (the default mean removal per segment would delete a carrier at DC,
     which a spectrum check must see) [1]_.
     """
-    x = _as_1d_complex(samples, "samples")
+    x = as_1d_complex(samples, "samples")
     sps = _check_int(sps, "sps", 1)
     averages_min = _check_int(averages_min, "averages_min", 1)
     lowest = max(_NPERSEG_MIN, _pow2_ceil(_BINS_PER_RS_MIN * sps))
@@ -416,7 +416,3 @@ def _check_fraction(value) -> float:
         raise ConfigError(f"expected a fraction strictly between 0 and 1, got {value!r}",
                           key="fraction")
     return float(value)
-
-
-def _as_1d_complex(x, name: str) -> np.ndarray:
-    return as_1d_complex(x, name)

@@ -49,8 +49,8 @@ from numbers import Integral, Real
 import numpy as np
 from scipy import integrate, optimize, signal
 
-from modemverify._checks import as_1d_complex
 from modemverify.errors import ConfigError, UnknownNameError
+from .._checks import as_1d_complex
 
 __all__ = ["PULSE_SHAPES", "DEFAULT_SPAN", "pulse_taps", "PulseShape"]
 
@@ -366,7 +366,7 @@ class PulseShape:
             the upsampled train's trailing zeros would give; for
             ``'rectangular'``, each symbol repeated ``sps`` times and scaled by ``1/sqrt(sps)``.
         """
-        s = _as_1d_complex(symbols, "symbols")
+        s = as_1d_complex(symbols, "symbols", finite=False)
         if self.shape == "rectangular":
             out = np.repeat(s, self.sps)
             out *= 1.0 / math.sqrt(self.sps)
@@ -404,7 +404,7 @@ class PulseShape:
         an equaliser.
         """
         n = _check_int(n_symbols, "n_symbols", 0)
-        x = _as_1d_complex(samples, "samples")
+        x = as_1d_complex(samples, "samples", finite=False)
         if self.shape == "rectangular":
             need = n * self.sps
             buf = np.zeros(need, dtype=np.complex128)
@@ -577,10 +577,6 @@ def _raised_cosine_spectrum(f: np.ndarray, a: float) -> np.ndarray:
         band = (af > lo) & (af <= hi)
         out = np.where(band, 0.5 * (1.0 + np.cos(np.pi * (af - lo) / a)), out)
     return out
-
-
-def _as_1d_complex(x, name: str) -> np.ndarray:
-    return as_1d_complex(x, name, finite=False)
 
 
 # -- polyphase filtering through BLAS. Both routines are the exact convolutions of

@@ -17,13 +17,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..dsp.formats import sqnr_db
+from ..dsp.align import apply_alignment
+from ..dsp.formats import SAMPLE_FORMATS, clip_count, encode_samples, sqnr_db
 from ..options import Opt
 from ..verdict import Verdict
 from .base import Oracle
 
 DEFAULT_MIN_SQNR_DB = {"int16": 40.0, "int8": 20.0}
-RAIL = {"int16": 32768, "int8": 128}
 
 
 def _format_of(bench):
@@ -57,10 +57,8 @@ class FixedPointOracle(Oracle):
         k, n = bench.k, opts["symbols"]
         bits = np.unpackbits(np.frombuffer(rng.bytes(-(-n * k // 8)), dtype=np.uint8))[:n * k]
         raw = bench.device.modulate(bits)
-        lsb = full_scale / RAIL[fmt]
-        codes = np.rint(raw.view(np.float64) / lsb)
-        rails = (codes >= RAIL[fmt] - 1) | (codes <= -RAIL[fmt])
-        clipped = int(np.count_nonzero(rails.reshape(-1, 2).any(axis=1)))
+        # the device's codes again (its samples are code x full_scale / 2**(bits-1))
+        clipped = clip_count(encode_samples(raw, fmt, full_scale), fmt)
         frac = clipped / max(raw.size, 1)
         out = []
         peak = float(np.max(np.abs(raw.view(np.float64)))) / full_scale if raw.size else 0.0
@@ -74,14 +72,12 @@ class FixedPointOracle(Oracle):
         ref = bench.reference.modulate(bits)
         applied = bench.alignment()
         if applied is not None:
-            from ..dsp.align import apply_alignment
-
             raw = apply_alignment(raw, applied.correction, ref.size)
         m = min(raw.size, ref.size)
         value = sqnr_db(raw[:m], ref[:m])
         floor = opts["min_sqnr_db"] if opts["min_sqnr_db"] is not None else \
             DEFAULT_MIN_SQNR_DB[fmt]
-        ideal = 6.02 * (16 if fmt == "int16" else 8) + 1.76
+        ideal = 6.02 * SAMPLE_FORMATS[fmt].bits + 1.76
         out.append(Verdict(f"{self.name}.sqnr", "pass" if value >= floor else "fail",
                            f"SQNR {value:.1f} dB against the floating reference (at least "
                            f"{floor:g} dB; an ideal full-scale sine would give {ideal:.1f} dB)",

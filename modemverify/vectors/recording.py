@@ -45,7 +45,8 @@ import numpy as np
 import yaml
 
 from .._version import __version__
-from ..adapters._wire import SAMPLE_FORMATS, decode_samples, encode_samples
+from ..dsp.formats import (SAMPLE_FORMATS, WIRE_FORMATS, check_format, check_full_scale,
+                           encode_samples, from_format)
 from ..errors import ConfigError
 from ..schemes.conventions import MODULATIONS, get_convention
 from ..schemes.labels import labels_to_bits
@@ -135,8 +136,9 @@ def golden_vector_set(modulation: str, convention: str, *, samples_per_symbol: i
     modulation, convention : str
         E.g. ``"16qam"``, ``"3gpp"``.
     samples_per_symbol : int
-        Above 1, each point is held for that many samples (the rectangular pulse modemverify
-        assumes when no pulse is declared).
+        Above 1, each point is held for that many samples, scaled by
+        ``1 / sqrt(samples_per_symbol)`` (the unit-energy rectangular pulse modemverify assumes
+        when no pulse is declared).
     segments : tuple of str, optional
         Names from :data:`GOLDEN_SEGMENTS`; default :func:`default_segments`.
     sample_format, full_scale
@@ -205,8 +207,8 @@ def write_vector_set(vs: VectorSet, folder: str | Path, *, npy: bool = True,
         raw_bits = f"{vs.name}.bits.u8"
         raw_iq = f"{vs.name}.iq.{_RAW_SUFFIX[vs.sample_format]}"
         (folder / raw_bits).write_bytes(bits.tobytes())
-        comp = encode_samples(samples, vs.sample_format, vs.full_scale)
-        (folder / raw_iq).write_bytes(comp.astype(comp.dtype.newbyteorder("<")).tobytes())
+        (folder / raw_iq).write_bytes(
+            encode_samples(samples, vs.sample_format, vs.full_scale).tobytes())  # little-endian
         bits_entry["raw"] = raw_bits
         samples_entry["raw"] = raw_iq
         files += [raw_bits, raw_iq]
@@ -326,22 +328,20 @@ def read_vector_set(path: str | Path, *, verify: bool = True) -> VectorSet:
     _need(isinstance(samp_e, dict) and ("npy" in samp_e or "raw" in samp_e),
           f"samples={samp_e!r}: expected a mapping with npy and/or raw file names", file,
           "samples")
-    fmt = samp_e.get("sample_format", "float32")
-    _need(fmt in SAMPLE_FORMATS, f"sample_format={fmt!r}: expected one of "
-          f"{', '.join(SAMPLE_FORMATS)}", file, "samples.sample_format")
-    full_scale = samp_e.get("full_scale", 1.0)
-    _need(isinstance(full_scale, (int, float)) and not isinstance(full_scale, bool)
-          and full_scale > 0, f"full_scale={full_scale!r}: expected a number > 0", file,
-          "samples.full_scale")
+    fmt = check_format(samp_e.get("sample_format", "float32"), WIRE_FORMATS, file=file,
+                       key="samples.sample_format")
+    full_scale = check_full_scale(samp_e.get("full_scale", 1.0), file=file,
+                                  key="samples.full_scale")
     if "npy" in samp_e:
         samples = _load_npy(checked(_payload_path(folder, samp_e["npy"], file, "samples.npy"),
                                     "samples.npy"), file, "samples.npy", "c")
     else:
         p = checked(_payload_path(folder, samp_e["raw"], file, "samples.raw"), "samples.raw")
         raw = p.read_bytes()
-        _need(len(raw) % SAMPLE_FORMATS[fmt] == 0, f"{p.name}: {len(raw)} bytes is not a whole "
-              f"number of {fmt} samples ({SAMPLE_FORMATS[fmt]} bytes each)", file, "samples.raw")
-        samples = decode_samples(raw, fmt, float(full_scale))
+        size = SAMPLE_FORMATS[fmt].bytes_per_sample
+        _need(len(raw) % size == 0, f"{p.name}: {len(raw)} bytes is not a whole number of "
+              f"{fmt} samples ({size} bytes each)", file, "samples.raw")
+        samples = from_format(raw, fmt, full_scale)
     for key, arr, entry in (("bits", bits, bits_e), ("samples", samples, samp_e)):
         if "count" in entry:
             _need(entry["count"] == arr.size, f"count={entry['count']!r}, but the file holds "
@@ -376,4 +376,4 @@ def read_vector_set(path: str | Path, *, verify: bool = True) -> VectorSet:
     return VectorSet(name=str(head.get("name", path.stem)), modulation=modulation,
                      convention=convention, samples_per_symbol=sps, segments=segments,
                      calls=tuple(calls), source=str(head.get("source", "")),
-                     sample_format=fmt, full_scale=float(full_scale), path=path)
+                     sample_format=fmt, full_scale=full_scale, path=path)

@@ -5,8 +5,9 @@ import math
 import numpy as np
 import pytest
 
-from modemverify.dsp.formats import (SAMPLE_FORMATS, clip_count, from_format, parse_format,
-                                     sqnr_db, to_format)
+from modemverify.dsp.formats import (PYTHON_FORMATS, SAMPLE_FORMATS, WIRE_FORMATS, check_format,
+                                     check_full_scale, clip_count, encode_samples, from_format,
+                                     parse_format, sqnr_db, to_format)
 from modemverify.errors import ConfigError, UnknownNameError
 
 TOP = {"int16": 32768, "int8": 128}  # Q15 / Q7: value = code x full_scale / 2**(b-1)
@@ -14,11 +15,36 @@ TOP = {"int16": 32768, "int8": 128}  # Q15 / Q7: value = code x full_scale / 2**
 
 def test_parse_format():
     assert parse_format("Complex64") == "complex64"
-    assert set(SAMPLE_FORMATS) == {"complex128", "complex64", "int16", "int8"}
-    known = "complex128, complex64, int16, int8"
+    assert set(SAMPLE_FORMATS) == {"complex128", "complex64", "float32", "int16", "int8"}
+    assert set(PYTHON_FORMATS) | set(WIRE_FORMATS) == set(SAMPLE_FORMATS)
+    known = "complex128, complex64, float32, int16, int8"
     with pytest.raises(UnknownNameError, match=f"sample format named 'int12'; known: {known}") as e:
         parse_format("int12")
     assert e.value.known == sorted(SAMPLE_FORMATS)
+
+
+def test_the_table():
+    # sizes of IEEE 754 binary64 / binary32 and of two's-complement 16- and 8-bit integers,
+    # two of them a complex sample (common practice); Q15 / Q7: full_scale is code 2**(b-1)
+    sizes = {name: (f.bytes_per_sample, f.bits, f.top) for name, f in SAMPLE_FORMATS.items()}
+    assert sizes == {"complex128": (16, 64, 0), "complex64": (8, 32, 0), "float32": (8, 32, 0),
+                     "int16": (4, 16, 32768), "int8": (2, 8, 128)}
+    assert [f.name for f in SAMPLE_FORMATS.values() if f.interleaved] == \
+        ["float32", "int16", "int8"]
+
+
+def test_full_scale_and_format_keys_are_checked_in_one_place():
+    assert check_full_scale(2) == 2.0 and isinstance(check_full_scale(np.float32(0.5)), float)
+    for bad in (0, -1.0, math.inf, math.nan, True, "1", None):
+        with pytest.raises(ConfigError) as info:
+            check_full_scale(bad, file="dev.yaml", key="samples.full_scale")
+        assert info.value.key == "samples.full_scale" and info.value.file == "dev.yaml"
+        assert f"full_scale={bad!r}: expected a finite number > 0" in str(info.value)
+    assert check_format("int16", WIRE_FORMATS) == "int16"
+    for bad in ("int8", "INT16", ["int16"], None):
+        with pytest.raises(ConfigError, match="expected one of float32, int16") as info:
+            check_format(bad, WIRE_FORMATS)
+        assert info.value.key == "sample_format"
 
 
 @pytest.mark.parametrize("fmt", ["int16", "int8"])
@@ -61,6 +87,40 @@ def test_complex_formats():
     z, over = to_format(x, "complex128")
     assert over == 0 and np.array_equal(z, x) and z is not x
     assert clip_count(z, "complex128") == 0
+
+
+def test_float32_is_interleaved_complex64():
+    # float32 I, Q pairs are the bytes of complex64 (numpy stores a complex as real, imaginary)
+    x = np.array([1 + 2j, -0.5 + 1e-9j, 0.1 - 0.3j, 3e39 + 0j])
+    iq, over = to_format(x, "float32")
+    assert iq.dtype == np.dtype("<f4") and iq.size == 8 and over == 1   # 3e39 overflows
+    with np.errstate(over="ignore"):
+        assert iq.tobytes() == x.astype("<c8").tobytes()
+    assert iq[0] == 1 and iq[1] == 2                                      # I first
+    np.testing.assert_array_equal(from_format(iq.tobytes(), "float32")[:3],
+                                  x[:3].astype(np.complex64))
+    np.testing.assert_array_equal(from_format(iq.reshape(-1, 2)[:3], "float32"),
+                                  x[:3].astype(np.complex64))
+    with pytest.raises(ConfigError, match="whole number of float32 samples"):
+        from_format(iq.tobytes()[:12], "float32")
+    with pytest.raises(ConfigError, match="real I/Q values"):
+        from_format(np.zeros(4, complex), "float32")
+
+
+def test_encode_samples_is_to_format_without_the_checks():
+    rng = np.random.default_rng(3)
+    x = 1.5 * (rng.normal(size=999) + 1j * rng.normal(size=999))   # some beyond full scale
+    for fmt in SAMPLE_FORMATS:
+        for full_scale in (1.0, 2.5):
+            a, _ = to_format(x, fmt, full_scale)
+            b = encode_samples(x, fmt, full_scale)
+            assert a.dtype == b.dtype and a.tobytes() == b.tobytes(), fmt
+    # unchecked: NaN passes to a floating-point format instead of raising
+    assert np.isnan(encode_samples([np.nan + 0j], "float32")[0])
+    with pytest.raises(ConfigError, match="finite"):
+        to_format([np.nan + 0j], "float32")
+    with pytest.raises(ConfigError, match="full_scale"):
+        encode_samples([0j], "int16", full_scale=-1)
 
 
 def test_bytes_are_little_endian():

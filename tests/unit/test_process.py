@@ -18,9 +18,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from modemverify.adapters import _wire
 from modemverify.adapters.base import GuardedDevice
 from modemverify.adapters.process import ProcessAdapter
 from modemverify.config import load_device
+from modemverify.dsp.formats import from_format
 from modemverify.errors import AdapterError, ConfigError, DeviceCrashed, DeviceTimeout
 from modemverify.runner import check
 
@@ -253,6 +255,27 @@ def test_isolate_false_is_refused(tmp_path):
         load_device(path)
 
 
+def test_a_python_device_process_imports_numpy_and_no_more_of_modemverify_than_the_codec():
+    # DEVELOPERS.md, "Out-of-process devices": _wire depends on the standard library and numpy
+    # only (the sample codec it shares, modemverify.dsp.formats, is numpy only too)
+    code = textwrap.dedent("""
+        import json, sys
+        before = set(sys.modules)
+        import modemverify.adapters._wire
+        print(json.dumps(sorted(set(sys.modules) - before)))
+    """)
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True).stdout
+    loaded = {m.split(".")[0] if not m.startswith("modemverify") else m
+              for m in json.loads(out)}
+    third_party = {m for m in loaded if not m.startswith("modemverify")
+                   and m not in sys.stdlib_module_names and m != "numpy"}
+    assert not third_party, third_party
+    assert {m for m in loaded if m.startswith("modemverify")} <= {
+        "modemverify", "modemverify.errors", "modemverify._checks", "modemverify.dsp",
+        "modemverify.dsp.formats", "modemverify.adapters", "modemverify.adapters._wire"}
+
+
 def test_serve_round_trip_over_pipes():
     """The device side (serve) and the harness side agree on framing, without a child."""
     code = textwrap.dedent("""
@@ -266,8 +289,6 @@ def test_serve_round_trip_over_pipes():
                 return self.gain * (1 - 2.0 * bits[0::2]) + 0j
         serve(Dev, sample_format="int16", full_scale=4.0)
     """)
-    from modemverify.adapters import _wire
-
     proc = subprocess.Popen([sys.executable, "-c", code], stdin=subprocess.PIPE,
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE)
     try:
@@ -282,7 +303,7 @@ def test_serve_round_trip_over_pipes():
         assert (kind, seq) == (_wire.RESULT, 2)
         # Q15 at full scale 4: 2.0 -> 16384
         assert np.frombuffer(payload, "<i2").tolist() == [16384, 0, -16384, 0]
-        np.testing.assert_allclose(_wire.decode_samples(payload, "int16", 4.0), [2, -2])
+        np.testing.assert_allclose(from_format(payload, "int16", 4.0), [2, -2])
         _wire.write_frame(proc.stdin, _wire.QUIT, 3)
         assert proc.wait(30) == 0
         assert b"stray print goes to stderr" in proc.stderr.read()

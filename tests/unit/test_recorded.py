@@ -19,9 +19,9 @@ import numpy as np
 import pytest
 import yaml
 
-from modemverify.adapters._wire import decode_samples
 from modemverify.adapters.recorded import RecordedAdapter
 from modemverify.config import load_device
+from modemverify.dsp.formats import from_format
 from modemverify.errors import AdapterError, ConfigError
 from modemverify.runner import check
 from modemverify.vectors.recording import (SHIPPED_SETS, Segment, VectorSet, golden_vector_set,
@@ -60,7 +60,7 @@ def test_every_shipped_set_is_what_export_writes(tmp_path):
         # the raw files hold the same data as the .npy files
         raw_bits = np.fromfile(VECTORS / f"{name}.bits.u8", dtype=np.uint8)
         assert np.array_equal(raw_bits, ours.bits)
-        raw_iq = decode_samples((VECTORS / f"{name}.iq.cf32").read_bytes(), "float32")
+        raw_iq = from_format((VECTORS / f"{name}.iq.cf32").read_bytes(), "float32")
         np.testing.assert_allclose(raw_iq, ours.samples, atol=1e-7)
         assert (VECTORS / f"{name}.iq.npy").stat().st_size < 16_000  # small, as promised
 
@@ -169,6 +169,22 @@ def test_header_problems_name_file_and_key(tmp_path):
     header.write_text(yaml.safe_dump(head))
     with pytest.raises(ConfigError, match="modulation='8qam'"):
         read_vector_set(header)
+    head["scheme"]["modulation"] = "qpsk"
+    for key, value, words in (("sample_format", "int8", "expected one of float32, int16"),
+                              ("full_scale", float("inf"), "expected a finite number > 0")):
+        header.write_text(yaml.safe_dump({**head, "samples": {**head["samples"], key: value}}))
+        with pytest.raises(ConfigError) as info:
+            read_vector_set(header)
+        assert info.value.key == f"samples.{key}" and words in str(info.value)
+
+
+def test_full_scale_of_a_recorded_device_is_checked(tmp_path):
+    path = write_device(tmp_path, "rec", {
+        "adapter": "recorded", "recording": str(VECTORS / "qpsk-3gpp.yaml"), "full_scale": -2,
+        "scheme": {"modulation": "qpsk", "convention": "3gpp"}})
+    with pytest.raises(ConfigError) as info:
+        load_device(path)
+    assert info.value.key == "full_scale" and "expected a finite number > 0" in str(info.value)
 
 
 def test_recording_must_match_the_claimed_scheme(tmp_path):

@@ -17,6 +17,7 @@ import numpy as np
 import pytest
 
 from modemverify.adapters.base import GuardedDevice
+from modemverify.adapters.isolated import IsolatedAdapter
 from modemverify.adapters.sharedlib import SharedLibAdapter
 from modemverify.config import load_device
 from modemverify.errors import AdapterError, ConfigError, DeviceOutputError
@@ -99,8 +100,6 @@ def test_segfault_is_an_error_verdict_and_the_junit_file_is_complete(tmp_path):
 
 def test_crash_restarts_the_worker_for_the_next_call(tmp_path):
     spec = load_device(qpsk_sharedlib(tmp_path, "abort", ["ABORT"]))
-    from modemverify.adapters.isolated import IsolatedAdapter
-
     adapter = IsolatedAdapter.from_spec(spec)
     try:
         device = GuardedDevice(adapter, 2)
@@ -159,6 +158,7 @@ def test_example_library_soft_outputs_match_the_exact_llr(tmp_path):
     ({"symbols": {"demodulate_soft": "s"}}, "symbols", "at least one of modulate"),
     ({"sample_format": "float64"}, "sample_format", "expected one of float32, int16"),
     ({"full_scale": 2.0}, "full_scale", "int16 only"),
+    ({"sample_format": "int16", "full_scale": 0}, "full_scale", "expected a finite number > 0"),
 ])
 def test_device_file_errors_name_file_and_key(tmp_path, change, key, words):
     lib = build_library(tmp_path, "long mod(void) { return 0; }\n", "tiny")
