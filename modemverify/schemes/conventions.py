@@ -27,7 +27,8 @@ from functools import lru_cache
 import numpy as np
 
 from ..errors import ConfigError, UnknownNameError
-from .labels import gray_code, labels_to_bits
+from .geometry import nearest_neighbour_pairs
+from .labels import gray_code, hamming, labels_to_bits
 
 #: modulation name -> bits per symbol
 MODULATIONS: dict[str, int] = {
@@ -182,9 +183,6 @@ def _generic(name: str, modulation: str) -> tuple[np.ndarray, float]:
 
 
 def _is_gray(points: np.ndarray) -> bool:
-    from .geometry import nearest_neighbour_pairs
-    from .labels import hamming
-
     i, j = nearest_neighbour_pairs(points)
     return bool(np.all(hamming(i, j) == 1))
 

@@ -272,8 +272,9 @@ def test_a_python_device_process_imports_numpy_and_no_more_of_modemverify_than_t
                    and m not in sys.stdlib_module_names and m != "numpy"}
     assert not third_party, third_party
     assert {m for m in loaded if m.startswith("modemverify")} <= {
-        "modemverify", "modemverify.errors", "modemverify._checks", "modemverify.dsp",
-        "modemverify.dsp.formats", "modemverify.adapters", "modemverify.adapters._wire"}
+        "modemverify", "modemverify._version", "modemverify.errors", "modemverify._checks",
+        "modemverify.dsp", "modemverify.dsp.formats", "modemverify.adapters",
+        "modemverify.adapters._wire"}
 
 
 def test_serve_round_trip_over_pipes():
