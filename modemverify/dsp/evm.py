@@ -25,7 +25,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from modemverify.errors import ConfigError, UnknownNameError
-from .._checks import as_1d_complex
+from ..options import as_1d_complex
 
 __all__ = [
     "DEFAULT_EVM_LIMITS",

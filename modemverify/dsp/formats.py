@@ -41,7 +41,7 @@ from numbers import Real
 import numpy as np
 
 from modemverify.errors import ConfigError, UnknownNameError
-from .._checks import as_1d_complex
+from ..options import as_1d_complex
 
 __all__ = ["SampleFormat", "SAMPLE_FORMATS", "PYTHON_FORMATS", "WIRE_FORMATS", "parse_format",
            "check_format", "check_full_scale", "encode_samples", "to_format", "from_format",

@@ -23,7 +23,7 @@ import numpy as np
 from scipy import signal
 
 from modemverify.errors import ConfigError
-from .._checks import as_1d_complex
+from ..options import as_1d_complex
 
 __all__ = [
     "welch_psd",

@@ -22,7 +22,7 @@ import math
 from typing import NamedTuple
 
 
-from modemverify._checks import number_in
+from modemverify.options import number_in
 from modemverify.errors import ConfigError
 from modemverify.schemes.theory import ebn0_for_ber
 from modemverify.stats.intervals import clopper_pearson

@@ -38,7 +38,7 @@ from typing import NamedTuple
 import numpy as np
 from scipy import optimize, stats
 
-from modemverify._checks import number_in, whole_number
+from modemverify.options import number_in, whole_number
 from modemverify.errors import ConfigError
 
 __all__ = [

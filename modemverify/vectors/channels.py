@@ -24,7 +24,7 @@ from typing import ClassVar
 import numpy as np
 
 from modemverify.errors import ConfigError, UnknownNameError
-from modemverify._checks import whole_number as _check_int
+from modemverify.options import whole_number as _check_int
 from modemverify.vectors.coverage import MAX_BITS_PER_SYMBOL
 
 __all__ = [

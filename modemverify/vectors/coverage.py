@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from modemverify._checks import whole_number
+from modemverify.options import whole_number
 from modemverify.errors import ConfigError
 from modemverify.schemes.labels import labels_to_bits
 
