@@ -8,6 +8,7 @@ stats, vectors). Either way a bad value raises ConfigError naming the key or arg
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from operator import index
 from typing import Any, Callable
@@ -27,7 +28,10 @@ class Opt:
     ``also`` lists literal values accepted as they are beside the kind (``"auto"``, ``None``);
     ``expected`` replaces the kind's own words in the message for a value of the wrong type;
     ``required`` makes a missing key an error that quotes ``help``; ``check`` returns a
-    problem (text) or None for a value of the right kind.
+    problem (text) or None for a value of the right kind; ``parse(value, file=, key=)``
+    replaces the kind's own conversion with a domain's validator (the sample codec's
+    ``check_full_scale``, say), which returns the value or raises ConfigError. Numbers must be
+    finite: NaN and infinities are refused with the key named.
     """
 
     kind: str
@@ -41,11 +45,19 @@ class Opt:
     also: tuple = ()
     expected: str | None = None
     required: bool = False
+    parse: Callable[..., Any] | None = None
 
     def validate(self, value: Any, *, file: str | None, key: str) -> Any:
         if any(value is a or (type(value) is type(a) and value == a) for a in self.also):
             return value
-        v = _coerce(self, value, file=file, key=key)
+        if self.parse is not None:
+            v = self.parse(value, file=file, key=key)
+        else:
+            v = _coerce(self, value, file=file, key=key)
+        for x in (v if self.kind == "numbers" else [v] if self.kind in ("number", "int") else []):
+            if not math.isfinite(x):
+                raise ConfigError(f"{key.rsplit('.', 1)[-1]}={value!r}: expected a finite "
+                                  f"number", file=file, key=key)
         for x in (v if self.kind == "numbers" else [v] if self.kind in ("number", "int") else []):
             if self.minimum is not None and (x < self.minimum or
                                              (self.exclusive_minimum and x == self.minimum)):
@@ -109,7 +121,7 @@ def _coerce(opt: Opt, value, *, file, key):
         return float(v)
     if opt.kind == "int":
         v = _yaml_number(value)
-        if not _is_number(v) or float(v) != int(v):
+        if not _is_number(v) or not math.isfinite(v) or float(v) != int(v):
             raise bad("a whole number")
         return int(v)
     if opt.kind == "choice":

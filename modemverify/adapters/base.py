@@ -27,6 +27,7 @@ from typing import ClassVar
 import numpy as np
 
 from ..errors import AdapterError, DeviceOutputError
+from ..options import Opt
 from ..spec import DeviceSpec
 
 CAPABILITIES = ("modulate", "demodulate", "demodulate_soft")
@@ -35,12 +36,14 @@ CAPABILITIES = ("modulate", "demodulate", "demodulate_soft")
 class ModemAdapter(ABC):
     """Base class of adapters. Subclasses set ``adapter_id`` and implement :meth:`from_spec`.
 
-    ``config_keys`` maps the extra top-level device-file keys the adapter reads to a short
-    description; the device-file loader accepts exactly those beside the common keys.
+    ``config_keys`` maps the extra top-level device-file keys the adapter reads to an
+    :class:`~modemverify.options.Opt`, which the device-file loader validates with every other
+    key (a plain description is accepted too: the value is then the adapter's own to check in
+    :meth:`validate_spec`). The loader accepts exactly those keys beside the common ones.
     """
 
     adapter_id: ClassVar[str]
-    config_keys: ClassVar[dict[str, str]] = {}
+    config_keys: ClassVar[dict[str, Opt | str]] = {}
     #: default of the device file's ``isolate`` key: run the device in a worker process
     isolate_default: ClassVar[bool] = False
     #: true when the adapter itself runs the device out of process and enforces ``timeout_s``

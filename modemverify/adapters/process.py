@@ -33,6 +33,7 @@ import numpy as np
 
 from ..dsp.formats import SAMPLE_FORMATS, encode_samples, from_format
 from ..errors import AdapterError, ConfigError, DeviceCrashed, DeviceOutputError, DeviceTimeout
+from ..options import Opt
 from . import _wire
 from .base import ModemAdapter, summarise_bits, summarise_samples
 from .isolated import OPEN_TIMEOUT_S, STDERR_QUOTE, HangGuard, describe_exit
@@ -282,9 +283,12 @@ class ProcessAdapter(ModemAdapter):
     isolate_default = True
     isolates_itself = True
     config_keys = {
-        "command": "argument list that starts the device process (no shell); a program path is "
-                   "relative to the device file; {python} means this Python",
-        "env": "environment variables added for the device process",
+        # the argument list is checked with the device file's folder at hand (_argv)
+        "command": Opt("any", None, "argument list that starts the device process (no shell); "
+                       "a program path is relative to the device file; {python} means this "
+                       "Python"),
+        "env": Opt("mapping", {}, "environment variables added for the device process",
+                   also=(None,), expected="a mapping of variable names to values"),
     }
 
     def __init__(self, spec):

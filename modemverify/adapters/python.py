@@ -16,8 +16,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ..dsp.formats import (PYTHON_FORMATS, SAMPLE_FORMATS, check_format, check_full_scale,
-                           from_format, to_format)
+from ..dsp.formats import (PYTHON_FORMATS, SAMPLE_FORMATS, from_format, full_scale_opt,
+                           sample_format_opt, to_format)
 from ..errors import AdapterError, ConfigError, DeviceOutputError
 from .base import CAPABILITIES, ModemAdapter
 
@@ -62,9 +62,8 @@ def load_target(target: str, base_dir: Path, *, file: str | None = None):
 
 def validate_format_keys(spec) -> tuple[str, float]:
     """``sample_format`` and ``full_scale`` of a device file, checked."""
-    fmt = check_format(spec.extra.get("sample_format", "complex128"), PYTHON_FORMATS,
-                       file=spec.file)
-    full_scale = check_full_scale(spec.extra.get("full_scale", 1.0), file=spec.file)
+    fmt = spec.extra.get("sample_format", "complex128")  # both checked when the file loaded
+    full_scale = spec.extra.get("full_scale", 1.0)
     if "full_scale" in spec.extra and not SAMPLE_FORMATS[fmt].integer:
         raise ConfigError(f"full_scale={spec.extra['full_scale']!r} applies to sample_format "
                           f"int16 or int8", file=spec.file, key="full_scale")
@@ -99,8 +98,10 @@ class PythonAdapter(ModemAdapter):
 
     adapter_id = "python"
     config_keys = {
-        "sample_format": "complex128 (default), complex64, int16 or int8 (interleaved I, Q codes)",
-        "full_scale": "int16/int8: the value of the code 2**(bits-1) (default 1.0)",
+        "sample_format": sample_format_opt(PYTHON_FORMATS, "complex128", "complex128 (default), "
+                                           "complex64, int16 or int8 (interleaved I, Q codes)"),
+        "full_scale": full_scale_opt("int16/int8: the value of the code 2**(bits-1) "
+                                     "(default 1.0)"),
     }
 
     def __init__(self, device, sample_format: str = "complex128", full_scale: float = 1.0):

@@ -29,8 +29,9 @@ from pathlib import Path
 
 import numpy as np
 
-from ..dsp.formats import check_full_scale, encode_samples
+from ..dsp.formats import encode_samples, full_scale_opt
 from ..errors import AdapterError, ConfigError
+from ..options import Opt
 from ..schemes.conventions import MODULATIONS
 from ..schemes.labels import bits_to_labels
 from ..vectors.recording import read_vector_set
@@ -146,7 +147,7 @@ def _load(spec):
         if not bits_file.is_file():
             raise ConfigError(f"bits={x['bits']!r}: no such file {bits_file}", file=file,
                               key="bits")
-    full_scale = check_full_scale(x.get("full_scale", 1.0), file=file)
+    full_scale = x.get("full_scale", 1.0)  # checked when the file loaded
     if path.suffix in SIGMF_SUFFIXES:
         return _segments_from_sigmf(path, spec, bits_file, full_scale), ("modulate",), "sigmf"
     if path.suffix not in (".yaml", ".yml"):
@@ -172,9 +173,12 @@ class RecordedAdapter(ModemAdapter):
     adapter_id = "recorded"
     replays_only = True
     config_keys = {
-        "recording": "vector-set header (.yaml) or SigMF recording, relative to the device file",
-        "bits": "SigMF only: file of the bits sent (.npy, or one byte per bit), from sample 0",
-        "full_scale": "SigMF ci16_le only: the value of the integer 32768 (default 1.0)",
+        "recording": Opt("str", None, "vector-set header (.yaml) or SigMF recording, relative "
+                         "to the device file", required=True, expected="a path"),
+        "bits": Opt("str", None, "SigMF only: file of the bits sent (.npy, or one byte per "
+                    "bit), from sample 0", expected="a path"),
+        "full_scale": full_scale_opt("SigMF ci16_le only: the value of the integer 32768 "
+                                     "(default 1.0)"),
     }
 
     def __init__(self, segments, calls, bits_per_symbol: int, samples_per_symbol: int,

@@ -34,9 +34,10 @@ import re
 
 import numpy as np
 
-from ..dsp.formats import (SAMPLE_FORMATS, WIRE_FORMATS, check_format, check_full_scale,
-                           encode_samples, from_format)
+from ..dsp.formats import (SAMPLE_FORMATS, WIRE_FORMATS, encode_samples, from_format,
+                           full_scale_opt, sample_format_opt)
 from ..errors import AdapterError, ConfigError, DeviceOutputError
+from ..options import Opt
 from .base import ModemAdapter, summarise_bits, summarise_samples
 
 SYMBOL_KEYS = ("modulate", "demodulate", "demodulate_soft")
@@ -74,12 +75,12 @@ def _options(spec):
     if not set(symbols) & {"modulate", "demodulate"}:
         raise ConfigError("symbols: name at least one of modulate and demodulate", file=file,
                           key="symbols")
-    fmt = check_format(x.get("sample_format", "float32"), WIRE_FORMATS, file=file)
+    fmt = x.get("sample_format", "float32")  # both checked when the file loaded
     full_scale = x.get("full_scale", 1.0)
     if "full_scale" in x and fmt != "int16":
         raise ConfigError(f"full_scale={full_scale!r} applies to sample_format: int16 only",
                           file=file, key="full_scale")
-    return path, dict(symbols), fmt, check_full_scale(full_scale, file=file)
+    return path, dict(symbols), fmt, full_scale
 
 
 class SharedLibAdapter(ModemAdapter):
@@ -88,10 +89,14 @@ class SharedLibAdapter(ModemAdapter):
     adapter_id = "sharedlib"
     isolate_default = True
     config_keys = {
-        "library": "path of the shared library, relative to the device file",
-        "symbols": "C function names: {modulate: NAME, demodulate: NAME, demodulate_soft: NAME}",
-        "sample_format": "float32 (default) or int16 (Q15, see full_scale)",
-        "full_scale": "int16 only: the value of the integer 32768 (default 1.0)",
+        "library": Opt("str", None, "path of the shared library, relative to the device file",
+                       expected="a path such as build/libmodem.so"),
+        "symbols": Opt("mapping", None, "C function names: {modulate: NAME, demodulate: NAME, "
+                       "demodulate_soft: NAME}",
+                       expected="a mapping such as {modulate: qpsk_mod, demodulate: qpsk_demod}"),
+        "sample_format": sample_format_opt(WIRE_FORMATS, "float32",
+                                           "float32 (default) or int16 (Q15, see full_scale)"),
+        "full_scale": full_scale_opt("int16 only: the value of the integer 32768 (default 1.0)"),
     }
 
     def __init__(self, lib, functions: dict, bits_per_symbol: int, samples_per_symbol: int,

@@ -40,8 +40,8 @@ from numbers import Real
 
 import numpy as np
 
-from modemverify.errors import ConfigError, UnknownNameError
-from ..options import as_1d_complex
+from ..errors import ConfigError, UnknownNameError
+from ..options import Opt, as_1d_complex
 
 __all__ = ["SampleFormat", "SAMPLE_FORMATS", "PYTHON_FORMATS", "WIRE_FORMATS", "parse_format",
            "check_format", "check_full_scale", "encode_samples", "to_format", "from_format",
@@ -381,3 +381,15 @@ def sqnr_db(fixed, reference) -> float:
     if signal_power == 0:
         return -math.inf
     return 10.0 * math.log10(signal_power / e_n)
+
+
+def sample_format_opt(allowed: tuple[str, ...], default: str, help: str) -> Opt:
+    """The device-file key ``sample_format``, one of ``allowed`` (for an adapter's
+    ``config_keys``)."""
+    return Opt("choice", default, help, choices=allowed,
+               parse=lambda v, *, file, key: check_format(v, allowed, file=file, key=key))
+
+
+def full_scale_opt(help: str) -> Opt:
+    """The device-file key ``full_scale``, checked by :func:`check_full_scale`."""
+    return Opt("number", 1.0, help, parse=check_full_scale)

@@ -46,6 +46,23 @@ def scheme(**changes):
     (base(scheme={"convention": "3gpp"}), "scheme.modulation", "missing key 'modulation'"),
     (base(checks={"roundtrip": {"prbs": "prbs16"}}), "checks.roundtrip.prbs",
      "expected one of prbs7, prbs9, prbs11"),
+    # numbers are finite (YAML .nan and .inf), the mechanism's own rule for every option
+    (base(isolate=True, timeout_s=float("inf")), "timeout_s", "expected a finite number"),
+    (base(checks={"ber": {"margin_db": float("nan")}}), "checks.ber.margin_db",
+     "expected a finite number"),
+    (base(checks={"ber": {"max_bits": float("inf")}}), "checks.ber.max_bits",
+     "expected a finite number"),
+    (scheme(samples_per_symbol=float("nan")), "scheme.samples_per_symbol",
+     "expected a whole number"),
+    # adapter keys are declared by the adapter and validated by the same mechanism
+    (base(adapter="python", target="m.py:M", sample_format="int12"), "sample_format",
+     "expected one of complex128"),
+    (base(adapter="python", target="m.py:M", sample_format="int16", full_scale=float("nan")),
+     "full_scale", "expected a finite number > 0"),
+    (base(adapter="sharedlib", library=3), "library", "expected a path such as"),
+    (base(adapter="process", command=["x"], env=["A=1"]), "env",
+     "expected a mapping of variable names to values"),
+    (base(adapter="recorded"), "recording", "missing key 'recording'"),
 ])
 def test_a_wrong_value_names_its_key(data, key, words):
     with pytest.raises(ConfigError) as info:
