@@ -31,7 +31,7 @@ import math
 import numpy as np
 
 from ..options import Opt
-from ..schemes.theory import THEORY_MODULATIONS, ber as theory_ber, ebn0_for_ber
+from ..schemes.theory import THEORY_MODULATIONS, ber as theory_ber, default_ebn0_points
 from ..stats import (Sprt, block_interval, clopper_pearson, dispersion_test,
                      implementation_loss_db)
 from ..vectors.channels import Awgn, channel_from_config
@@ -45,11 +45,6 @@ MIN_SUB_BLOCK = 8192
 FIRST_BLOCK = 1 << 17
 #: fewest sub-blocks for which the over-dispersion test may set the SPRT's decision aside
 MIN_BURST_BLOCKS = 10
-
-
-def _default_points(modulation: str) -> list[float]:
-    """Eb/N0 (0.1 dB grid) where theory gives a BER of 1e-2, 1e-3 and 1e-4."""
-    return [round(float(ebn0_for_ber(modulation, p)), 1) for p in (1e-2, 1e-3, 1e-4)]
 
 
 def _impairments(v):
@@ -107,7 +102,7 @@ class BerOracle(Oracle):
 
     def run(self, bench: Bench, opts, rng, seed):
         mod = bench.convention.modulation
-        points = opts["ebn0_db"] or _default_points(mod)
+        points = opts["ebn0_db"] or default_ebn0_points(mod)
         n_points = len(points)
         risk = 1 - opts["confidence"]
         if opts["familywise"]:
