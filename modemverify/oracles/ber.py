@@ -31,7 +31,7 @@ import math
 import numpy as np
 
 from ..options import Opt
-from ..schemes.theory import THEORY_MODULATIONS, ber as theory_ber, ebn0_for_ber
+from ..schemes.theory import THEORY_MODULATIONS, ber as theory_ber, default_ebn0_points
 from ..stats import (Sprt, block_interval, clopper_pearson, dispersion_test,
                      implementation_loss_db)
 from ..vectors.channels import Awgn, channel_from_config
@@ -43,13 +43,8 @@ MIN_SUB_BLOCK = 8192
 #: bits in the first block of a point (blocks then double up to block_bits); enough sub-blocks
 #: for the burst test at BERs of 1e-3 and above
 FIRST_BLOCK = 1 << 17
-#: significance level of the over-dispersion test
-DISPERSION_ALPHA = 0.01
-
-
-def _default_points(modulation: str) -> list[float]:
-    """Eb/N0 (0.1 dB grid) where theory gives a BER of 1e-2, 1e-3 and 1e-4."""
-    return [round(float(ebn0_for_ber(modulation, p)), 1) for p in (1e-2, 1e-3, 1e-4)]
+#: fewest sub-blocks for which the over-dispersion test may set the SPRT's decision aside
+MIN_BURST_BLOCKS = 10
 
 
 def _impairments(v):
@@ -107,7 +102,7 @@ class BerOracle(Oracle):
 
     def run(self, bench: Bench, opts, rng, seed):
         mod = bench.convention.modulation
-        points = opts["ebn0_db"] or _default_points(mod)
+        points = opts["ebn0_db"] or default_ebn0_points(mod)
         n_points = len(points)
         risk = 1 - opts["confidence"]
         if opts["familywise"]:
@@ -167,8 +162,9 @@ class BerOracle(Oracle):
                 d = sprt.update(err, n)
                 if d is not None:
                     counts = np.concatenate(sub_counts)
-                    test = dispersion_test(counts, sub) if len(counts) >= 10 else None
-                    if test is not None and test.phi > 1 and test.pvalue < DISPERSION_ALPHA:
+                    test = (dispersion_test(counts, sub) if len(counts) >= MIN_BURST_BLOCKS
+                            else None)
+                    if test is not None and test.bursty():
                         mode, bursty = "interval", test.phi
                     else:
                         decided = (d.outcome, d.bits_used, d.errors_used, "sprt")
@@ -192,14 +188,13 @@ class BerOracle(Oracle):
         else:
             r = clopper_pearson(errors, bits_sent, conf)
         interval = (float(r.low), float(r.high))
-        disp = getattr(r, "dispersion", math.nan)
         loss = implementation_loss_db(mod, ebn0, ber, interval)
         details = {
             "ebn0_db": ebn0, "theory_ber": p0, "limit_ber": p1, "margin_db": opts["margin_db"],
             "bits": bits_sent, "errors": errors, "decided_after_bits": used_bits,
             "decided_after_errors": used_errors, "method": method, "risk": risk,
             "loss_db": loss.loss_db, "loss_interval_db": [loss.low_db, loss.high_db],
-            "dispersion": None if math.isnan(disp) else float(disp), "sub_block_bits": sub,
+            "dispersion": r.dispersion, "sub_block_bits": sub,
             "energy": opts["energy"], "sides": bench.sides(),
             "impairments": impair.describe() if impair.stages else "",
         }

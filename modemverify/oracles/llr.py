@@ -81,13 +81,13 @@ class LlrOracle(Oracle):
     }
 
     def run(self, bench: Bench, opts, rng, seed):
-        from ..schemes.theory import THEORY_MODULATIONS, ebn0_for_ber
+        from ..schemes.theory import THEORY_MODULATIONS, default_ebn0_points
 
         k, sps = bench.k, bench.sps
         mod = bench.convention.modulation
         ebn0 = opts["ebn0_db"]
         if ebn0 is None:
-            ebn0 = (round(float(ebn0_for_ber(mod, 1e-2)), 1) if mod in THEORY_MODULATIONS
+            ebn0 = (default_ebn0_points(mod, (1e-2,))[0] if mod in THEORY_MODULATIONS
                     else 10.0)
         n = opts["bits"] - opts["bits"] % (8 * k)
         bits = np.unpackbits(np.frombuffer(rng.bytes(n // 8), dtype=np.uint8))

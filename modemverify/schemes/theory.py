@@ -60,6 +60,8 @@ __all__ = [
     "ber",
     "ser",
     "ebn0_for_ber",
+    "DEFAULT_BER_TARGETS",
+    "default_ebn0_points",
     "psk_ser",
     "psk_ber",
     "qam_ser",
@@ -500,3 +502,22 @@ def ebn0_for_ber(modulation: str, ber_target):
     uniq, inverse = np.unique(flat, return_inverse=True)
     vals = np.array([_inverse_scalar(mod, float(v)) for v in uniq], dtype=float)
     return _out(vals[inverse].reshape(t.shape), t.ndim == 0)
+
+
+#: Bit error rates at which the checks measure by default (the ``ber`` check at all three,
+#: the ``llr`` check at the first).
+DEFAULT_BER_TARGETS: tuple[float, ...] = (1e-2, 1e-3, 1e-4)
+
+
+def default_ebn0_points(modulation: str, targets=DEFAULT_BER_TARGETS) -> list[float]:
+    """Eb/N0 in dB, rounded to a 0.1 dB grid, where the theoretical BER equals each target.
+
+    The default measurement points of the ``ber`` check (and, with ``targets=(1e-2,)``, of the
+    ``llr`` check): :func:`ebn0_for_ber` of each target, rounded to one decimal.
+
+    Examples
+    --------
+    >>> default_ebn0_points('qpsk')
+    [4.3, 6.8, 8.4]
+    """
+    return [round(float(ebn0_for_ber(modulation, p)), 1) for p in targets]

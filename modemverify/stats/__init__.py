@@ -1,14 +1,16 @@
 """Statistics for BER decisions: exact intervals, sequential tests, implementation loss.
 
 * :mod:`~modemverify.stats.intervals` -- Clopper-Pearson intervals and one-sided bounds, and a
-  burst-aware interval for per-block error counts;
+  burst-aware interval for per-block error counts (both return one
+  :class:`~modemverify.stats.intervals.ConfidenceInterval`), with the burst rule
+  (:meth:`~modemverify.stats.intervals.DispersionTest.bursty`);
 * :mod:`~modemverify.stats.sequential` -- Wald's SPRT between theory and the BER limit, with
   the fixed-sample size, operating characteristic and average sample number for planning;
 * :mod:`~modemverify.stats.loss` -- implementation loss in dB with its interval.
 """
 
 from modemverify.stats.intervals import (
-    BlockIntervalResult,
+    DISPERSION_ALPHA,
     ConfidenceInterval,
     DispersionTest,
     block_interval,
@@ -29,7 +31,7 @@ from modemverify.stats.sequential import (
 )
 
 __all__ = [
-    "BlockIntervalResult",
+    "DISPERSION_ALPHA",
     "ConfidenceInterval",
     "Decision",
     "DispersionTest",

@@ -22,6 +22,7 @@ References
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from typing import NamedTuple
 
 import numpy as np
@@ -31,8 +32,8 @@ from modemverify.options import number_in, whole_number
 from modemverify.errors import ConfigError
 
 __all__ = [
+    "DISPERSION_ALPHA",
     "ConfidenceInterval",
-    "BlockIntervalResult",
     "DispersionTest",
     "clopper_pearson",
     "upper_bound",
@@ -42,11 +43,33 @@ __all__ = [
 ]
 
 
-class ConfidenceInterval(NamedTuple):
-    """A two-sided interval ``[low, high]`` for a probability."""
+#: Default significance level of the over-dispersion test (:meth:`DispersionTest.bursty`).
+DISPERSION_ALPHA = 0.01
+
+
+@dataclass(frozen=True)
+class ConfidenceInterval:
+    """A two-sided confidence interval ``[low, high]`` for a probability.
+
+    Every interval function of this module returns one (:func:`clopper_pearson`,
+    :func:`block_interval`). Like scipy's ``ConfidenceInterval`` it has ``low`` and ``high`` and
+    unpacks as ``low, high = ci``; it also carries how it was made.
+    """
 
     low: float
     high: float
+    #: Two-sided confidence level of the interval, in (0, 1).
+    confidence_level: float
+    #: Dispersion factor phi of the block counts the interval was built from
+    #: (:func:`block_interval`); ``None`` when there is no estimate: a plain binomial interval
+    #: (:func:`clopper_pearson`), or block counts with fewer than 2 blocks or no errors.
+    dispersion: float | None = None
+    #: ``"clopper-pearson"``, or ``"clopper-pearson/design-effect"`` when the counts were
+    #: divided by the dispersion factor (:func:`block_interval` on bursty counts).
+    method: str = "clopper-pearson"
+
+    def __iter__(self):
+        return iter((self.low, self.high))
 
 
 class DispersionTest(NamedTuple):
@@ -61,17 +84,18 @@ class DispersionTest(NamedTuple):
     #: P(X^2 >= statistic) under independent errors (chi-square with ``dof`` degrees of freedom).
     pvalue: float
 
+    def bursty(self, alpha: float = DISPERSION_ALPHA) -> bool:
+        """The burst rule: the counts are over-dispersed (``phi > 1``) at significance ``alpha``.
 
-class BlockIntervalResult(NamedTuple):
-    """Result of :func:`block_interval`."""
+        False when the test could not be computed (``phi`` and ``pvalue`` NaN).
 
-    low: float
-    high: float
-    #: Estimated dispersion factor phi (NaN when it cannot be estimated: < 2 blocks or 0 errors).
-    dispersion: float
-    #: ``"clopper-pearson"`` or ``"clopper-pearson/design-effect"`` (counts divided by phi).
-    method: str
-
+        Examples
+        --------
+        >>> dispersion_test([0, 0, 40, 0, 0, 0, 35, 0, 0, 0], 10_000).bursty()
+        True
+        """
+        a = _dispersion_alpha(alpha)
+        return bool(self.phi > 1.0 and self.pvalue < a)  # NaN compares False
 
 
 def _count(value, name: str, *, minimum: int) -> int:
@@ -82,6 +106,12 @@ def _confidence(value) -> float:
     return number_in(value, "confidence", 0.0, 1.0, open_low=True, open_high=True,
                      expected="a number strictly between 0 and 1, e.g. 0.95")
 
+
+def _dispersion_alpha(value) -> float:
+    return number_in(value, "dispersion_alpha", 0.0, 1.0, open_low=True, open_high=True,
+                     expected="a significance level strictly between 0 and 1, e.g. 0.01")
+
+
 def _counts(errors, n) -> tuple[int, int]:
     n = _count(n, "n", minimum=1)
     k = _count(errors, "errors", minimum=0)
@@ -90,12 +120,12 @@ def _counts(errors, n) -> tuple[int, int]:
     return k, n
 
 
-def _cp_beta(k: float, n: float, confidence: float) -> ConfidenceInterval:
+def _cp_beta(k: float, n: float, confidence: float) -> tuple[float, float]:
     """Clopper-Pearson ends as Beta quantiles; valid for non-integer (effective) counts too."""
     a = 1.0 - confidence
     low = 0.0 if k <= 0.0 else float(stats.beta.ppf(a / 2.0, k, n - k + 1.0))
     high = 1.0 if k >= n else float(stats.beta.isf(a / 2.0, k + 1.0, n - k))
-    return ConfidenceInterval(low, high)
+    return low, high
 
 
 def clopper_pearson(errors: int, n: int, confidence: float = 0.95) -> ConfidenceInterval:
@@ -125,7 +155,8 @@ def clopper_pearson(errors: int, n: int, confidence: float = 0.95) -> Confidence
     Returns
     -------
     ConfidenceInterval
-        ``(low, high)``; ``low`` is 0 when ``errors == 0``, ``high`` is 1 when ``errors == n``.
+        ``low`` is 0 when ``errors == 0``, ``high`` is 1 when ``errors == n``;
+        ``dispersion`` is ``None`` and ``method`` is ``"clopper-pearson"``.
 
     Examples
     --------
@@ -134,7 +165,8 @@ def clopper_pearson(errors: int, n: int, confidence: float = 0.95) -> Confidence
     '8.1365e-05 1.2163e-04'
     """
     k, n = _counts(errors, n)
-    return _cp_beta(float(k), float(n), _confidence(confidence))
+    c = _confidence(confidence)
+    return ConfidenceInterval(*_cp_beta(float(k), float(n), c), confidence_level=c)
 
 
 def upper_bound(errors: int, n: int, confidence: float = 0.95) -> float:
@@ -232,14 +264,15 @@ def dispersion_test(errors_per_block, bits_per_block) -> DispersionTest:
 
 
 def block_interval(errors_per_block, bits_per_block, confidence: float = 0.95, *,
-                   dispersion_alpha: float = 0.01) -> BlockIntervalResult:
+                   dispersion_alpha: float = DISPERSION_ALPHA) -> ConfidenceInterval:
     """Confidence interval for the bit error rate from per-block error counts, burst-aware.
 
-    The counts are first tested for over-dispersion (:func:`dispersion_test`). If ``phi > 1``
-    with p-value below ``dispersion_alpha``, the Clopper-Pearson interval is computed with the
-    effective sample size: errors / phi in bits / phi (the design effect; equivalently the
-    quasi-binomial variance ``phi p (1 - p) / n``). Otherwise, the plain Clopper-Pearson interval
-    of the pooled counts is returned.
+    The counts are first tested for over-dispersion (:func:`dispersion_test`). If they are
+    bursty (:meth:`DispersionTest.bursty`: ``phi > 1`` with p-value below ``dispersion_alpha``),
+    the Clopper-Pearson interval is computed with the effective sample size: errors / phi in
+    bits / phi (the design effect; equivalently the quasi-binomial variance
+    ``phi p (1 - p) / n``). Otherwise, the plain Clopper-Pearson interval of the pooled counts
+    is returned.
 
     The dispersion estimate is weak with few blocks: make sure at least 10 (better 30 or more)
     blocks contain errors, or the widening may not be triggered, and keep blocks much longer than
@@ -258,8 +291,9 @@ def block_interval(errors_per_block, bits_per_block, confidence: float = 0.95, *
 
     Returns
     -------
-    BlockIntervalResult
-        ``(low, high, dispersion, method)``.
+    ConfidenceInterval
+        ``dispersion`` is the estimated phi (``None`` with fewer than 2 blocks or no errors);
+        ``method`` says whether the counts were divided by it.
 
     Examples
     --------
@@ -270,14 +304,13 @@ def block_interval(errors_per_block, bits_per_block, confidence: float = 0.95, *
     ('clopper-pearson', True)
     """
     c = _confidence(confidence)
-    da = number_in(dispersion_alpha, "dispersion_alpha", 0.0, 1.0, open_low=True,
-                   open_high=True, expected="a significance level strictly between 0 and 1, "
-                                            "e.g. 0.01")
+    da = _dispersion_alpha(dispersion_alpha)
     k, n = _block_arrays(errors_per_block, bits_per_block)
     total_k, total_n = int(k.sum()), int(n.sum())
     test = dispersion_test(k, n)
-    if test.phi > 1.0 and test.pvalue < da:  # NaN compares False: plain interval
-        ci = _cp_beta(total_k / test.phi, total_n / test.phi, c)
-        return BlockIntervalResult(ci.low, ci.high, test.phi, "clopper-pearson/design-effect")
-    ci = clopper_pearson(total_k, total_n, c)
-    return BlockIntervalResult(ci.low, ci.high, test.phi, "clopper-pearson")
+    phi = None if math.isnan(test.phi) else test.phi
+    if test.bursty(da):
+        low, high = _cp_beta(total_k / test.phi, total_n / test.phi, c)
+        return ConfidenceInterval(low, high, c, phi, "clopper-pearson/design-effect")
+    low, high = _cp_beta(float(total_k), float(total_n), c)
+    return ConfidenceInterval(low, high, c, phi, "clopper-pearson")

@@ -55,10 +55,11 @@ __all__ = [
 class Decision(NamedTuple):
     """Outcome of a sequential BER test.
 
-    ``outcome`` is ``"pass"`` (accept H0: the device meets theory), ``"fail"`` (accept H1: at or
-    worse than the limit) or ``"inconclusive"`` (the bit budget ran out first; never a silent
-    pass). ``bits_used`` and ``errors_used`` count the bits up to and including the deciding one;
-    ``llr`` is the log likelihood ratio there.
+    ``outcome`` is ``"pass"`` (accept H0: the device meets theory) or ``"fail"`` (accept H1: at
+    or worse than the limit). A caller that stops feeding bits before a decision reports that
+    itself (the BER check calls it *inconclusive*, never a pass). ``bits_used`` and
+    ``errors_used`` count the bits up to and including the deciding one; ``llr`` is the log
+    likelihood ratio there.
     """
 
     outcome: str
@@ -122,9 +123,14 @@ class Sprt:
         Risk of failing a good device (deciding "fail" when ``p = p0``).
     beta : float
         Risk of passing a device at the limit (deciding "pass" when ``p = p1``).
-    max_bits : int, optional
-        Bit budget. Bits beyond it are not consumed; when it is spent without a decision,
-        :meth:`update` returns an ``"inconclusive"`` :class:`Decision`.
+
+    Attributes
+    ----------
+    log_a, log_b : float
+        ``ln A`` and ``ln B`` of Wald's thresholds (:func:`wald_thresholds`), computed once.
+    w_error, w_correct : float
+        Log likelihood-ratio increment of an error, ``ln(p1/p0) > 0``, and of a correct bit,
+        ``ln((1 - p1)/(1 - p0)) < 0``.
 
     Examples
     --------
@@ -138,8 +144,7 @@ class Sprt:
 
     """
 
-    def __init__(self, p0: float, p1: float, alpha: float = 0.05, beta: float = 0.05, *,
-                 max_bits: int | None = None):
+    def __init__(self, p0: float, p1: float, alpha: float = 0.05, beta: float = 0.05):
         self.p0, self.p1 = _check_pair(p0, p1)
         self.alpha, self.beta = _check_risks(alpha, beta)
         a, b = wald_thresholds(self.alpha, self.beta)
@@ -148,16 +153,13 @@ class Sprt:
         #: log likelihood-ratio increment of an error (> 0) and of a correct bit (< 0)
         self.w_error = math.log(self.p1 / self.p0)
         self.w_correct = math.log1p(-self.p1) - math.log1p(-self.p0)
-        if max_bits is not None:
-            max_bits = _index(max_bits, "max_bits", minimum=1)
-        self.max_bits = max_bits
         self._bits = 0
         self._errors = 0
         self._decision: Decision | None = None
 
     def __repr__(self) -> str:
         return (f"Sprt(p0={self.p0!r}, p1={self.p1!r}, alpha={self.alpha!r}, "
-                f"beta={self.beta!r}, max_bits={self.max_bits!r})")
+                f"beta={self.beta!r})")
 
     # the one formula; used everywhere so that results do not depend on block boundaries
     def _llr(self, n, k):
@@ -167,11 +169,6 @@ class Sprt:
     def state(self) -> SprtState:
         """Bits and errors consumed so far and the log likelihood ratio."""
         return SprtState(self._bits, self._errors, float(self._llr(self._bits, self._errors)))
-
-    @property
-    def decision(self) -> Decision | None:
-        """The decision, once made (``None`` while the test continues)."""
-        return self._decision
 
     def update(self, error_positions, block_len: int) -> Decision | None:
         """Consume one block of compared bits and return the decision if one is reached in it.
@@ -204,12 +201,6 @@ class Sprt:
                               f"{'...' if pos.size > 8 else ''}")
         if self._decision is not None:
             return self._decision
-
-        budget_hit = False
-        if self.max_bits is not None and self._bits + block_len >= self.max_bits:
-            block_len = self.max_bits - self._bits
-            pos = pos[pos < block_len]
-            budget_hit = True
 
         n0, k0 = self._bits, self._errors
         m = pos.size
@@ -257,27 +248,11 @@ class Sprt:
         else:
             self._bits = n0 + block_len
             self._errors = k0 + m
-            if budget_hit:
-                self._decision = Decision("inconclusive", self._bits, self._errors,
-                                          self.state.llr)
         return self._decision
 
     def _consume_to(self, n_stop: int, pos: np.ndarray, n0: int) -> None:
         self._errors += int(np.count_nonzero(n0 + pos + 1 <= n_stop))
         self._bits = n_stop
-
-    def finish(self) -> Decision:
-        """What to report when the caller stops feeding bits (budget, time or data exhausted).
-
-        Returns the decision if one was reached, otherwise an ``"inconclusive"`` decision with
-        the bits and errors seen so far -- never a silent pass. The caller should report the
-        point estimate and an exact interval (:func:`~modemverify.stats.clopper_pearson`) of
-        those counts alongside it.
-        """
-        if self._decision is not None:
-            return self._decision
-        st = self.state
-        return Decision("inconclusive", st.bits, st.errors, st.llr)
 
 
 
@@ -375,15 +350,14 @@ def operating_characteristic(p_true: float, p0: float, p1: float, alpha: float =
     >>> round(operating_characteristic(1e-2, 1e-2, 2e-2), 6)
     0.95
     """
-    p0, p1 = _check_pair(p0, p1)
-    a, b = _check_risks(alpha, beta)
+    t = Sprt(p0, p1, alpha, beta)
     p = _rate(p_true)
-    la, lb = math.log((1 - b) / a), math.log(b / (1 - a))
+    la, lb = t.log_a, t.log_b
     if p == 0.0:
         return 1.0
     if p == 1.0:
         return 0.0
-    ls, lr = math.log(p1 / p0), math.log1p(-p1) - math.log1p(-p0)
+    ls, lr = t.w_error, t.w_correct
     h = _h_for_p(p, ls, lr)
     if abs(h) < 1e-9:
         return la / (la - lb)
@@ -413,18 +387,16 @@ def expected_sample_size(p_true: float, p0: float, p1: float, alpha: float = 0.0
     >>> round(expected_sample_size(1e-2, 1e-2, 2e-2), 1)
     849.5
     """
-    p0, p1 = _check_pair(p0, p1)
-    a, b = _check_risks(alpha, beta)
+    t = Sprt(p0, p1, alpha, beta)
     p = _rate(p_true)
-    la, lb = math.log((1 - b) / a), math.log(b / (1 - a))
-    ls, lr = math.log(p1 / p0), math.log1p(-p1) - math.log1p(-p0)
+    la, lb, ls, lr = t.log_a, t.log_b, t.w_error, t.w_correct
     ez = p * ls + (1 - p) * lr
-    if p == p0:
-        oc = 1.0 - a
-    elif p == p1:
-        oc = b
+    if p == t.p0:
+        oc = 1.0 - t.alpha
+    elif p == t.p1:
+        oc = t.beta
     else:
-        oc = operating_characteristic(p, p0, p1, a, b)
+        oc = operating_characteristic(p, t.p0, t.p1, t.alpha, t.beta)
     if abs(ez) < 1e-12 * max(ls, -lr):
         ez2 = p * ls * ls + (1 - p) * lr * lr
         return -la * lb / ez2

@@ -1,9 +1,13 @@
 """BER confidence intervals against published values, scipy, and a bursty-error simulation.
 
-"REF 4" is section 4 ("Statistics for BER testing") of the project leads' table of vetted
-reference values; rows it marks [mem] are noted "from memory".
+Primary sources: C. J. Clopper and E. S. Pearson, Biometrika 26(4):404-413, 1934 (the exact
+interval); the worked example of M. C. Jeruchim, P. Balaban and K. S. Shanmugan, *Simulation of
+Communication Systems*, 2nd ed., 2000 (section not recorded); J. A. Hanley and A. Lippman-Hand,
+JAMA 249(13):1743-1745, 1983 (rule of three; citation details from memory); scipy's
+``BinomTestResult.proportion_ci`` documentation.
 """
 
+import dataclasses
 import math
 
 import numpy as np
@@ -13,8 +17,8 @@ from hypothesis import strategies as st
 from scipy import stats
 
 from modemverify.errors import ConfigError
-from modemverify.stats import (block_interval, clopper_pearson, dispersion_test, lower_bound,
-                               upper_bound)
+from modemverify.stats import (DISPERSION_ALPHA, ConfidenceInterval, block_interval,
+                               clopper_pearson, dispersion_test, lower_bound, upper_bound)
 
 
 def test_scipy_documentation_example():
@@ -27,18 +31,34 @@ def test_scipy_documentation_example():
     assert (low, high) == (ci.low, ci.high)
 
 
+def test_one_result_type_for_every_interval():
+    # clopper_pearson and block_interval return the same frozen type; it records its level and
+    # how it was made, and has no dispersion estimate unless built from block counts
+    ci = clopper_pearson(7, 50, 0.9)
+    assert type(ci) is ConfidenceInterval
+    assert (ci.confidence_level, ci.dispersion, ci.method) == (0.9, None, "clopper-pearson")
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        ci.low = 0.0
+    blk = block_interval([3, 5, 4, 6, 2, 4, 5, 3, 4, 4], 10_000, 0.9)
+    assert type(blk) is ConfidenceInterval and blk.confidence_level == 0.9
+    assert blk.dispersion == pytest.approx(
+        dispersion_test([3, 5, 4, 6, 2, 4, 5, 3, 4, 4], 10_000).phi, rel=1e-15)
+    assert tuple(blk) == tuple(clopper_pearson(40, 100_000, 0.9))
+
+
 def test_worked_example_100_errors_in_a_million():
-    # REF 4 "check value": M. C. Jeruchim, P. Balaban, K. S. Shanmugan,
-    # Simulation of Communication Systems, 2nd ed., 2000 -- worked example, 100 errors in 1e6
-    # bits: 95 % [0.0000814, 0.0001216], 90 % [0.0000841, 0.0001181]; 5 digits from scipy there.
+    # M. C. Jeruchim, P. Balaban, K. S. Shanmugan, Simulation of Communication Systems, 2nd ed.,
+    # 2000 -- worked example (section not recorded), 100 errors in 1e6 bits:
+    # 95 % [0.0000814, 0.0001216], 90 % [0.0000841, 0.0001181]; 5 digits from scipy.
     ci95 = clopper_pearson(100, 10**6, 0.95)
     assert ci95.low == pytest.approx(8.1365e-5, rel=1e-4)
     assert ci95.high == pytest.approx(1.2163e-4, rel=1e-4)
     ci90 = clopper_pearson(100, 10**6, 0.90)
     assert ci90.low == pytest.approx(8.4140e-5, rel=1e-4)
     assert ci90.high == pytest.approx(1.1808e-4, rel=1e-4)
-    # rule of thumb (REF 4, "~100 errors for +-20 %"; Jeruchim, IEEE JSAC 1984,
-    # attribution from memory): exact 95 % is -18.6 % / +21.6 % around the estimate
+    # rule of thumb "about 100 errors for +-20 %": M. C. Jeruchim, "Techniques for estimating
+    # the bit error rate in the simulation of digital communication systems", IEEE JSAC
+    # SAC-2(1):153-170, 1984 (attribution from memory); exact 95 % is -18.6 % / +21.6 %
     assert ci95.low / 1e-4 - 1 == pytest.approx(-0.186, abs=5e-4)
     assert ci95.high / 1e-4 - 1 == pytest.approx(0.216, abs=5e-4)
 
@@ -49,12 +69,13 @@ def test_rule_of_three(n, times_n):
     # memory): 0 errors in N bits -> one-sided 95 % upper bound 1 - 0.05**(1/N) ~ 2.996/N
     ub = upper_bound(0, n, 0.95)
     assert ub == pytest.approx(1 - 0.05 ** (1 / n), rel=1e-9)
-    assert ub * n == pytest.approx(times_n, abs=1e-4)  # REF 4 [py]
+    assert ub * n == pytest.approx(times_n, abs=1e-4)  # N (1 - 0.05**(1/N)), evaluated
 
 
 def test_rule_of_three_pitfall_two_sided():
-    # REF 4 "pitfall": the two-sided 95 % upper end is 3.689/N, and the rule of
-    # three equals the upper end of the two-sided 90 % interval
+    # the rule of three is one-sided (Hanley & Lippman-Hand 1983); the two-sided 95 %
+    # Clopper-Pearson upper end for 0 errors is 1 - 0.025**(1/N) ~ -ln(0.025)/N = 3.689/N
+    # (Clopper & Pearson 1934), and the rule of three is the upper end of the two-sided 90 %
     n = 10**6
     assert clopper_pearson(0, n, 0.95).high * n == pytest.approx(3.6889, abs=1e-4)
     assert clopper_pearson(0, n, 0.95).low == 0.0
@@ -66,7 +87,7 @@ def test_rule_of_three_pitfall_two_sided():
 @settings(max_examples=60, deadline=None)
 def test_agrees_with_scipy_binomtest_and_tail_equations(k, extra, conf):
     # Clopper & Pearson (Biometrika 26(4):404-413, 1934): the ends solve
-    # P(K >= k | low) = a/2 and P(K <= k | high) = a/2 (REF 4).
+    # P(K >= k | low) = a/2 and P(K <= k | high) = a/2.
     n = k + extra
     if n == 0:
         return
@@ -91,8 +112,8 @@ def test_agrees_with_scipy_binomtest_and_tail_equations(k, extra, conf):
 def test_exact_at_low_bit_error_rates(k):
     # At BER ~1e-11 the binomial interval is the exact Poisson (gamma) interval
     # [G^-1(a/2; k), G^-1(1 - a/2; k + 1)] / n to within k/n (F. Garwood, Biometrika 1936,
-    # citation from memory; common practice;
-    # REF 4 quotes the Poisson figures -18.6 % / +21.6 % for 100 errors).
+    # citation from memory; common practice; the Poisson figures -18.6 % / +21.6 % for 100
+    # errors are those of the Jeruchim et al. worked example above).
     # scipy.stats.binomtest(...).proportion_ci is off by up to 13 % here (absolute brentq
     # tolerance), so this is checked against the gamma quantiles instead.
     n = 10**13
@@ -101,7 +122,7 @@ def test_exact_at_low_bit_error_rates(k):
     assert ci.low == pytest.approx(low, rel=1e-9)
     assert ci.high == pytest.approx(stats.gamma.isf(0.025, k + 1) / n, rel=1e-9)
     assert upper_bound(k, n, 0.95) == pytest.approx(stats.gamma.isf(0.05, k + 1) / n, rel=1e-9)
-    if k == 0:  # rule of three and its two-sided pitfall, REF 4
+    if k == 0:  # rule of three (Hanley & Lippman-Hand 1983) and -ln(0.025) = 3.6889
         assert upper_bound(0, n) * n == pytest.approx(2.9957, abs=1e-4)
         assert ci.high * n == pytest.approx(3.6889, abs=1e-4)
     if k == 100:
@@ -192,17 +213,21 @@ def test_independent_errors_keep_exact_interval():
     # With binomial block counts the dispersion test rarely fires (nominal 1 % level); the
     # coverage stays that of Clopper-Pearson. Measured: 2 of 400 widened, 94 % covered (seed 7;
     # seeds 8-16: 1-8 widened, 92.75-98.5 % covered).
-    reps, widened, covered = 400, 0, 0
+    reps, widened, covered, plain = 400, 0, 0, 0
     for child in np.random.SeedSequence(7).spawn(reps):
         k = np.random.default_rng(child).binomial(20_000, 1e-3, 100)
         res = block_interval(k, 20_000)
         widened += res.method != "clopper-pearson"
         covered += res.low <= 1e-3 <= res.high
+        # the method follows the burst rule, and it is the one rule block_interval applies
+        test = dispersion_test(k, 20_000)
+        assert (res.method == "clopper-pearson") == (not test.bursty())
+        if res.method == "clopper-pearson":  # not widened: exact interval of the pooled counts
+            assert tuple(res) == tuple(clopper_pearson(int(k.sum()), 2_000_000))
+            plain += 1
     assert widened <= 12  # binomial(400, 0.01): mean 4, P(> 12) < 1e-3
+    assert plain == reps - widened
     assert covered / reps >= 0.91  # CP is conservative; slack for 400 runs
-    # when not widened, the result is the exact interval of the pooled counts
-    assert (res.low, res.high) == tuple(clopper_pearson(int(k.sum()), 2_000_000)) or \
-        res.method != "clopper-pearson"
 
 
 def test_design_effect_widens_by_sqrt_phi():
@@ -222,11 +247,11 @@ def test_design_effect_widens_by_sqrt_phi():
 def test_block_interval_edge_cases():
     # no errors: nothing to estimate dispersion from, exact interval of the pooled counts
     res = block_interval(np.zeros(20, dtype=int), 1000)
-    assert math.isnan(res.dispersion) and res.method == "clopper-pearson"
+    assert res.dispersion is None and res.method == "clopper-pearson"
     assert res.low == 0.0 and res.high == pytest.approx(clopper_pearson(0, 20_000).high)
     # one block: no dispersion estimate
     res = block_interval([7], 1000)
-    assert math.isnan(res.dispersion)
+    assert res.dispersion is None
     assert (res.low, res.high) == tuple(clopper_pearson(7, 1000))
     # per-block lengths
     res = block_interval([3, 1, 4], [1000, 500, 2000])
@@ -241,6 +266,27 @@ def test_block_interval_edge_cases():
 def test_block_interval_rejects_bad_arguments(k, n, match):
     with pytest.raises(ConfigError, match=match):
         block_interval(k, n)
+
+
+def test_burst_rule_threshold():
+    # phi > 1 and P(chi-square >= X^2) < alpha (Pearson's X^2 with B - 1 degrees of freedom;
+    # quasi-binomial dispersion, common practice); the p-value is scipy's chi2.sf
+    k = np.array([0, 0, 40, 0, 0, 0, 35, 0, 0, 0, 0, 45, 0, 0, 0, 0, 50, 0, 0, 30] * 3)
+    test = dispersion_test(k, 10_000)
+    assert test.pvalue == pytest.approx(stats.chi2.sf(test.statistic, k.size - 1), rel=1e-12)
+    assert test.phi > 1 and test.bursty() and test.bursty(DISPERSION_ALPHA)
+    assert DISPERSION_ALPHA == 0.01
+    # at a level just below its p-value the same counts are not called bursty
+    borderline = np.array([8, 2, 6, 3, 7, 1, 5, 4, 9, 2, 6, 3])
+    t2 = dispersion_test(borderline, 5_000)
+    assert t2.bursty(t2.pvalue * 1.001) and not t2.bursty(t2.pvalue * 0.999)
+    # under-dispersed counts (phi < 1) are never bursty, whatever the level
+    even = dispersion_test(np.full(30, 5), 5_000)
+    assert even.phi == 0.0 and not even.bursty(0.999)
+    # no estimate, no bursts
+    assert not dispersion_test([0, 0, 0], 100).bursty()
+    with pytest.raises(ConfigError, match="dispersion_alpha"):
+        test.bursty(1.5)
 
 
 def test_block_interval_rejects_bad_levels():

@@ -1,14 +1,17 @@
 """Implementation loss in dB, from the inverse of the theory curve.
 
-Anchors: the vetted reference values, sec. 3 ("Eb/N0 for BPSK/QPSK Pb": 1e-4 at 8.398 dB, 1e-5 at
-9.588 dB; computed from Pb = Q(sqrt(2 Eb/N0)), Proakis & Salehi, 5th ed., ch. 4, section from
-memory) and section 4 (rule of three, Hanley & Lippman-Hand, JAMA 1983).
+Anchors: QPSK Pb = Q(sqrt(2 Eb/N0)) (J. G. Proakis and M. Salehi, Digital Communications, 5th
+ed., 2008, ch. 4, section from memory), which puts Pb = 1e-4 at 8.398 dB and 1e-5 at 9.588 dB
+(computed from the formula, Eb/N0 = Q^-1(p)^2 / 2), and the two-sided 95 % Clopper-Pearson upper
+end for 0 errors, 1 - 0.025**(1/N) ~ 3.689/N (C. J. Clopper and E. S. Pearson, Biometrika
+26(4):404-413, 1934).
 """
 
 import math
 
 import numpy as np
 import pytest
+from scipy import stats
 
 from modemverify.errors import ConfigError, UnknownNameError
 from modemverify.schemes.theory import THEORY_MODULATIONS, ber
@@ -35,7 +38,10 @@ def test_theory_half_a_db_lower_gives_half_a_db(mod):
 
 
 def test_published_qpsk_points():
-    # REF 3: QPSK Pb 1e-4 at 8.398 dB, 1e-5 at 9.588 dB (3 decimals)
+    # QPSK Pb 1e-4 at 8.398 dB, 1e-5 at 9.588 dB (Proakis & Salehi formula, see above), here
+    # computed independently with scipy's normal quantile: Eb/N0 = norm.isf(p)**2 / 2
+    for p, db in ((1e-4, 8.398), (1e-5, 9.588)):
+        assert 10 * math.log10(stats.norm.isf(p) ** 2 / 2) == pytest.approx(db, abs=5e-4)
     assert implementation_loss_db("qpsk", 9.0, 1e-4).loss_db == pytest.approx(0.602, abs=5e-4)
     assert implementation_loss_db("qpsk", 10.0, 1e-5).loss_db == pytest.approx(0.412, abs=5e-4)
 
@@ -59,8 +65,8 @@ def test_zero_errors_give_only_an_upper_bound():
     n = 10**6
     est = loss_from_counts("qpsk", 9.0, 0, n)
     assert est.loss_db == -math.inf and est.low_db == -math.inf
-    # the upper end is the loss at the exact upper BER bound (3.689/N two-sided 95 %,
-    # REF 4 "pitfall")
+    # the upper end is the loss at the exact upper BER bound (two-sided 95 % Clopper-Pearson,
+    # 1 - 0.025**(1/N) ~ -ln(0.025)/N = 3.689/N)
     assert est.high_db == pytest.approx(implementation_loss_db("qpsk", 9.0, 3.6889 / n).loss_db,
                                         abs=1e-4)
     assert est.describe() == f"at most {est.high_db:.2f} dB"
