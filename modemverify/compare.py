@@ -28,9 +28,9 @@ from .dsp.psd import welch_psd
 from .errors import AdapterError, ConfigError
 from .oracles._table import measure_table
 from .runner import RunResult, Subject, guarded
+from .schemes.transforms import differing_labels, explain_difference
 from .spec import DeviceSpec
 from .vectors.bits import random_bits
-from .schemes.transforms import differing_labels, explain_difference
 from .verdict import Verdict
 
 DEFAULTS = {"symbols": 1 << 14, "sample_error_percent": None, "evm_limit_percent": None,

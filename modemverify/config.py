@@ -15,10 +15,11 @@ import yaml
 from .adapters.registry import get_adapter_class
 from .dsp.pulses import PULSE_SHAPES, PulseShape
 from .errors import ConfigError, UnknownNameError
-from .oracles import validate_checks
 from .options import Opt, validate_options
+from .oracles import validate_checks
 from .schemes.conventions import CONVENTIONS, MODULATIONS, get_convention
 from .spec import DEFAULT_TIMEOUT_S, DeviceSpec, SchemeSpec
+
 
 def _non_empty(text: str) -> str | None:
     return None if text.strip() else "expected non-empty text"

@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 
 from modemverify.adapters.python import PythonAdapter
-from modemverify.config import parse_device
 from modemverify.bench import Bench, open_bench
+from modemverify.config import parse_device
 
 
 class TableModem:

@@ -61,8 +61,13 @@ from typing import BinaryIO
 
 import numpy as np
 
-from ..dsp.formats import (WIRE_FORMATS, check_format, check_full_scale, encode_samples,
-                           from_format)
+from ..dsp.formats import (
+    WIRE_FORMATS,
+    check_format,
+    check_full_scale,
+    encode_samples,
+    from_format,
+)
 from ..errors import ConfigError
 
 PROTOCOL_VERSION = 1

@@ -32,7 +32,13 @@ from functools import partial
 import numpy as np
 
 from ..dsp.formats import SAMPLE_FORMATS, encode_samples, from_format
-from ..errors import AdapterError, ConfigError, DeviceCrashed, DeviceOutputError, DeviceTimeout
+from ..errors import (
+    AdapterError,
+    ConfigError,
+    DeviceCrashed,
+    DeviceOutputError,
+    DeviceTimeout,
+)
 from ..options import Opt
 from . import _wire
 from .base import ModemAdapter, summarise_bits, summarise_samples

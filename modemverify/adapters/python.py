@@ -16,8 +16,14 @@ from pathlib import Path
 
 import numpy as np
 
-from ..dsp.formats import (PYTHON_FORMATS, SAMPLE_FORMATS, from_format, full_scale_opt,
-                           sample_format_opt, to_format)
+from ..dsp.formats import (
+    PYTHON_FORMATS,
+    SAMPLE_FORMATS,
+    from_format,
+    full_scale_opt,
+    sample_format_opt,
+    to_format,
+)
 from ..errors import AdapterError, ConfigError, DeviceOutputError
 from .base import CAPABILITIES, ModemAdapter
 

@@ -34,8 +34,14 @@ import re
 
 import numpy as np
 
-from ..dsp.formats import (SAMPLE_FORMATS, WIRE_FORMATS, encode_samples, from_format,
-                           full_scale_opt, sample_format_opt)
+from ..dsp.formats import (
+    SAMPLE_FORMATS,
+    WIRE_FORMATS,
+    encode_samples,
+    from_format,
+    full_scale_opt,
+    sample_format_opt,
+)
 from ..errors import AdapterError, ConfigError, DeviceOutputError
 from ..options import Opt
 from .base import ModemAdapter, summarise_bits, summarise_samples

@@ -53,6 +53,7 @@ import scipy.fft
 from scipy import optimize, signal
 
 from modemverify.errors import ConfigError
+
 from ..options import as_1d_complex
 
 __all__ = ["Alignment", "estimate_alignment", "apply_alignment"]

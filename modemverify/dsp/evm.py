@@ -25,6 +25,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from modemverify.errors import ConfigError, UnknownNameError
+
 from ..options import as_1d_complex
 
 __all__ = [

@@ -23,6 +23,7 @@ import numpy as np
 from scipy import signal
 
 from modemverify.errors import ConfigError
+
 from ..options import as_1d_complex
 
 __all__ = [

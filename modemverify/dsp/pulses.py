@@ -50,6 +50,7 @@ import numpy as np
 from scipy import integrate, optimize, signal
 
 from modemverify.errors import ConfigError, UnknownNameError
+
 from ..options import as_1d_complex
 
 __all__ = ["PULSE_SHAPES", "DEFAULT_SPAN", "pulse_taps", "PulseShape"]

@@ -8,8 +8,20 @@ from __future__ import annotations
 
 from ..errors import ConfigError, UnknownNameError
 from ..options import validate_options
-from . import (alignment, ber, energy, evm, finite, fixed_point, gray, length, llr, mapping,
-               roundtrip, spectrum)
+from . import (
+    alignment,
+    ber,
+    energy,
+    evm,
+    finite,
+    fixed_point,
+    gray,
+    length,
+    llr,
+    mapping,
+    roundtrip,
+    spectrum,
+)
 from .base import Oracle
 
 #: the oracle modules, in the order their checks run

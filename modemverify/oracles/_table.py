@@ -6,10 +6,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..bench import Bench
 from ..schemes.geometry import all_distinct, minimum_distance
 from ..schemes.labels import bits_to_labels, labels_to_bits
 from ..vectors.coverage import de_bruijn_labels
-from ..bench import Bench
 
 
 @dataclass(frozen=True)

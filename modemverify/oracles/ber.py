@@ -30,13 +30,21 @@ import math
 
 import numpy as np
 
+from ..bench import Bench
 from ..options import Opt
-from ..schemes.theory import THEORY_MODULATIONS, ber as theory_ber, default_ebn0_points
-from ..stats import (Sprt, block_interval, clopper_pearson, dispersion_test,
-                     implementation_loss_db)
+from ..schemes.theory import THEORY_MODULATIONS, default_ebn0_points
+from ..schemes.theory import ber as theory_ber
+from ..stats import (
+    Sprt,
+    block_interval,
+    clopper_pearson,
+    dispersion_test,
+    implementation_loss_db,
+)
+from ..vectors.bits import random_bits
 from ..vectors.channels import Awgn, channel_from_config
 from ..verdict import Verdict
-from .base import Bench, Oracle
+from .base import Oracle
 
 #: shortest sub-block (bits) of the error counts the over-dispersion test uses
 MIN_SUB_BLOCK = 8192
@@ -93,11 +101,11 @@ class BerOracle(Oracle):
         if not bench.convention.is_gray:
             return (f"the claimed convention {bench.convention.name!r} is not Gray; the theory "
                     f"curves assume Gray labelling")
-        shape = bench.spec.scheme.pulse.shape
-        if shape not in ("rectangular", "rrc"):
+        pulse = bench.spec.scheme.pulse
+        if not pulse.matched_pair:
             return (f"the theory curves assume a matched filter with no inter-symbol "
-                    f"interference (rectangular or rrc pulses); a {shape} pulse has ISI or "
-                    f"no matched-filter pair")
+                    f"interference (rectangular or rrc pulses); a {pulse.shape} pulse has ISI "
+                    f"or no matched-filter pair")
         return None
 
     def run(self, bench: Bench, opts, rng, seed):
@@ -147,7 +155,7 @@ class BerOracle(Oracle):
             n -= n % byte_sym
             if n <= 0:
                 break
-            bits = np.unpackbits(np.frombuffer(rng.bytes(n // 8), dtype=np.uint8))
+            bits = random_bits(rng, n)
             tx = bench.transmit(bits)
             if impair.stages:
                 tx = impair.apply(tx, rng)

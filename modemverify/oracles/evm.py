@@ -15,7 +15,8 @@ from __future__ import annotations
 import numpy as np
 from scipy import signal
 
-from ..dsp.evm import evm as evm_of, evm_limit
+from ..dsp.evm import evm as evm_of
+from ..dsp.evm import evm_limit
 from ..options import Opt
 from ..schemes.labels import bits_to_labels, label_string
 from ..vectors.bits import random_bits

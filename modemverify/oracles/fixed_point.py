@@ -17,9 +17,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..dsp.align import apply_alignment
 from ..dsp.formats import SAMPLE_FORMATS, clip_count, encode_samples, sqnr_db
 from ..options import Opt
+from ..vectors.bits import random_bits
 from ..verdict import Verdict
 from .base import Oracle
 
@@ -55,7 +55,7 @@ class FixedPointOracle(Oracle):
     def run(self, bench, opts, rng, seed):
         fmt, full_scale = _format_of(bench)
         k, n = bench.k, opts["symbols"]
-        bits = np.unpackbits(np.frombuffer(rng.bytes(-(-n * k // 8)), dtype=np.uint8))[:n * k]
+        bits = random_bits(rng, n * k)
         raw = bench.device.modulate(bits)
         # the device's codes again (its samples are code x full_scale / 2**(bits-1))
         clipped = clip_count(encode_samples(raw, fmt, full_scale), fmt)
@@ -70,9 +70,7 @@ class FixedPointOracle(Oracle):
                                    "set too low"), statistic=frac, limit=opts["max_clipped"],
                            unit="fraction", seed=seed, details={"clipped": clipped}))
         ref = bench.reference.modulate(bits)
-        applied = bench.alignment()
-        if applied is not None:
-            raw = apply_alignment(raw, applied.correction, ref.size)
+        raw = bench.aligned_waveform(raw, n)
         m = min(raw.size, ref.size)
         value = sqnr_db(raw[:m], ref[:m])
         floor = opts["min_sqnr_db"] if opts["min_sqnr_db"] is not None else \

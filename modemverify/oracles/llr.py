@@ -26,10 +26,13 @@ import math
 import numpy as np
 from scipy import optimize, special
 
+from ..bench import Bench
 from ..options import Opt
+from ..schemes.theory import THEORY_MODULATIONS, default_ebn0_points
+from ..vectors.bits import random_bits
 from ..vectors.channels import Awgn
 from ..verdict import Verdict
-from .base import Bench, Oracle
+from .base import Oracle
 
 
 def _nll(scale: float, llr: np.ndarray, sign: np.ndarray) -> float:
@@ -54,17 +57,6 @@ def best_scale(llr: np.ndarray, bits: np.ndarray) -> tuple[float, float]:
     return s, (1 / math.sqrt(info) if info > 0 else math.inf)
 
 
-def _aligned(bench, samples, n_symbols):
-    """The device's noisy waveform lined up with the reference (for the reference demapper)."""
-    applied = bench.alignment()
-    if applied is None:
-        return samples
-    from ..dsp.align import apply_alignment
-
-    return apply_alignment(samples, applied.correction,
-                           bench.reference.waveform_length(n_symbols))
-
-
 class LlrOracle(Oracle):
     name = "llr"
     requires = ("demodulate_soft",)
@@ -81,8 +73,6 @@ class LlrOracle(Oracle):
     }
 
     def run(self, bench: Bench, opts, rng, seed):
-        from ..schemes.theory import THEORY_MODULATIONS, default_ebn0_points
-
         k, sps = bench.k, bench.sps
         mod = bench.convention.modulation
         ebn0 = opts["ebn0_db"]
@@ -90,7 +80,7 @@ class LlrOracle(Oracle):
             ebn0 = (default_ebn0_points(mod, (1e-2,))[0] if mod in THEORY_MODULATIONS
                     else 10.0)
         n = opts["bits"] - opts["bits"] % (8 * k)
-        bits = np.unpackbits(np.frombuffer(rng.bytes(n // 8), dtype=np.uint8))
+        bits = random_bits(rng, n)
         tx = bench.transmit(bits)
         awgn = Awgn(ebn0, k, sps, nominal_es=1.0)
         rx = awgn.apply(tx, rng)
@@ -99,7 +89,7 @@ class LlrOracle(Oracle):
         if bench.spec.scheme.llr_positive_bit == 1:
             llr = -llr  # judge everything in the positive-means-0 convention
         ref = bench.reference.demodulate_soft(rx if not bench.device.has("modulate") else
-                                              _aligned(bench, rx, n // k), nv, n_symbols=n // k)
+                                              bench.aligned_waveform(rx, n // k), nv, n_symbols=n // k)
         where = f"at Eb/N0 {ebn0:g} dB over {n} bits"
         out = []
 

@@ -14,6 +14,7 @@ import numpy as np
 from hypothesis import HealthCheck, Phase, find, settings
 from hypothesis.errors import NoSuchExample
 
+from ..bench import Bench
 from ..errors import AdapterError
 from ..options import Opt
 from ..schemes.labels import labels_to_bits
@@ -21,7 +22,6 @@ from ..vectors.coverage import de_bruijn_labels
 from ..vectors.prbs import PRBS_PATTERNS, prbs
 from ..vectors.strategies import bit_sequences
 from ..verdict import Verdict
-from ..bench import Bench
 from .base import Oracle
 
 

@@ -18,7 +18,6 @@ All on a Welch PSD of the device's output for a long random bit sequence
 
 from __future__ import annotations
 
-
 from ..dsp.psd import aclr, mask_check, occupied_bandwidth, welch_psd, x_db_bandwidth
 from ..errors import ConfigError
 from ..options import Opt

@@ -16,6 +16,7 @@ simplest ones.
 from __future__ import annotations
 
 from dataclasses import dataclass
+
 import numpy as np
 
 from .geometry import minimum_distance

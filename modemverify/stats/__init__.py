@@ -19,7 +19,11 @@ from modemverify.stats.intervals import (
     lower_bound,
     upper_bound,
 )
-from modemverify.stats.loss import LossEstimate, implementation_loss_db, loss_from_counts
+from modemverify.stats.loss import (
+    LossEstimate,
+    implementation_loss_db,
+    loss_from_counts,
+)
 from modemverify.stats.sequential import (
     Decision,
     Sprt,

@@ -28,8 +28,8 @@ from typing import NamedTuple
 import numpy as np
 from scipy import stats
 
-from modemverify.options import number_in, whole_number
 from modemverify.errors import ConfigError
+from modemverify.options import number_in, whole_number
 
 __all__ = [
     "DISPERSION_ALPHA",

@@ -21,9 +21,8 @@ from __future__ import annotations
 import math
 from typing import NamedTuple
 
-
-from modemverify.options import number_in
 from modemverify.errors import ConfigError
+from modemverify.options import number_in
 from modemverify.schemes.theory import ebn0_for_ber
 from modemverify.stats.intervals import clopper_pearson
 

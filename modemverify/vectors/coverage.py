@@ -13,8 +13,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from modemverify.options import whole_number
 from modemverify.errors import ConfigError
+from modemverify.options import whole_number
 from modemverify.schemes.labels import labels_to_bits
 
 __all__ = [

@@ -45,8 +45,14 @@ import numpy as np
 import yaml
 
 from .._version import __version__
-from ..dsp.formats import (SAMPLE_FORMATS, WIRE_FORMATS, check_format, check_full_scale,
-                           encode_samples, from_format)
+from ..dsp.formats import (
+    SAMPLE_FORMATS,
+    WIRE_FORMATS,
+    check_format,
+    check_full_scale,
+    encode_samples,
+    from_format,
+)
 from ..errors import ConfigError
 from ..schemes.conventions import MODULATIONS, get_convention
 from ..schemes.labels import labels_to_bits

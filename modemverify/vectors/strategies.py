@@ -17,8 +17,8 @@ import numpy as np
 from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
-from modemverify.schemes.labels import labels_to_bits
 from modemverify.options import whole_number as _check_int
+from modemverify.schemes.labels import labels_to_bits
 from modemverify.vectors.coverage import _check_bits_per_symbol
 
 __all__ = ["bit_sequences", "label_sequences"]

@@ -102,9 +102,9 @@ def test_unmeasurable_point_is_skipped():
 
 
 def test_fail_on_inconclusive_gates(tmp_path):
+    from modemverify.adapters.python import PythonAdapter
     from modemverify.config import parse_device
     from modemverify.runner import check
-    from modemverify.adapters.python import PythonAdapter
 
     spec = parse_device({"name": "x", "adapter": "python", "target": "t:x",
                          "fail_on_inconclusive": True,

@@ -9,9 +9,13 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from modemverify.schemes.conventions import (CONVENTIONS, MODULATIONS, conventions_for,
-                                             get_convention)
 from modemverify.errors import ConfigError, UnknownNameError
+from modemverify.schemes.conventions import (
+    CONVENTIONS,
+    MODULATIONS,
+    conventions_for,
+    get_convention,
+)
 
 S2, S10, S42, S170 = np.sqrt(2), np.sqrt(10), np.sqrt(42), np.sqrt(170)
 

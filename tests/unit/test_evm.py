@@ -10,8 +10,13 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from modemverify.dsp.evm import (DEFAULT_EVM_LIMITS, evm, evm_from_snr_db, evm_limit,
-                                 snr_db_from_evm)
+from modemverify.dsp.evm import (
+    DEFAULT_EVM_LIMITS,
+    evm,
+    evm_from_snr_db,
+    evm_limit,
+    snr_db_from_evm,
+)
 from modemverify.errors import ConfigError, UnknownNameError
 from modemverify.schemes.conventions import get_convention
 

@@ -5,9 +5,19 @@ import math
 import numpy as np
 import pytest
 
-from modemverify.dsp.formats import (PYTHON_FORMATS, SAMPLE_FORMATS, WIRE_FORMATS, check_format,
-                                     check_full_scale, clip_count, encode_samples, from_format,
-                                     parse_format, sqnr_db, to_format)
+from modemverify.dsp.formats import (
+    PYTHON_FORMATS,
+    SAMPLE_FORMATS,
+    WIRE_FORMATS,
+    check_format,
+    check_full_scale,
+    clip_count,
+    encode_samples,
+    from_format,
+    parse_format,
+    sqnr_db,
+    to_format,
+)
 from modemverify.errors import ConfigError, UnknownNameError
 
 TOP = {"int16": 32768, "int8": 128}  # Q15 / Q7: value = code x full_scale / 2**(b-1)

@@ -9,12 +9,11 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from conftest import make_spec
 
 from modemverify.adapters.python import PythonAdapter
 from modemverify.identify import identify
 from modemverify.runner import check_object
-
-from conftest import make_spec
 
 komm = pytest.importorskip("komm")
 commpy_mod = pytest.importorskip("commpy.modulation")

@@ -17,8 +17,15 @@ from hypothesis import strategies as st
 from scipy import stats
 
 from modemverify.errors import ConfigError
-from modemverify.stats import (DISPERSION_ALPHA, ConfidenceInterval, block_interval,
-                               clopper_pearson, dispersion_test, lower_bound, upper_bound)
+from modemverify.stats import (
+    DISPERSION_ALPHA,
+    ConfidenceInterval,
+    block_interval,
+    clopper_pearson,
+    dispersion_test,
+    lower_bound,
+    upper_bound,
+)
 
 
 def test_scipy_documentation_example():

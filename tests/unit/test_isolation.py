@@ -16,15 +16,18 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from _cmodems import write_device
 
 from modemverify.adapters.base import GuardedDevice
-from modemverify.adapters.isolated import MAX_CONSECUTIVE_TIMEOUTS, IsolatedAdapter, open_adapter
+from modemverify.adapters.isolated import (
+    MAX_CONSECUTIVE_TIMEOUTS,
+    IsolatedAdapter,
+    open_adapter,
+)
 from modemverify.adapters.python import PythonAdapter
 from modemverify.config import load_device, parse_device
 from modemverify.errors import AdapterError, ConfigError, DeviceCrashed, DeviceTimeout
 from modemverify.runner import check
-
-from _cmodems import write_device
 
 FAST = {"ber": False, "llr": False}
 

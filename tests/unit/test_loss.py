@@ -15,8 +15,13 @@ from scipy import stats
 
 from modemverify.errors import ConfigError, UnknownNameError
 from modemverify.schemes.theory import THEORY_MODULATIONS, ber
-from modemverify.stats import (LossEstimate, block_interval, clopper_pearson,
-                               implementation_loss_db, loss_from_counts)
+from modemverify.stats import (
+    LossEstimate,
+    block_interval,
+    clopper_pearson,
+    implementation_loss_db,
+    loss_from_counts,
+)
 
 
 @pytest.mark.parametrize("mod", THEORY_MODULATIONS)

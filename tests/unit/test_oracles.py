@@ -4,12 +4,11 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from conftest import TableModem
 
 from modemverify.oracles import ORACLES
 from modemverify.runner import run_oracle
 from modemverify.schemes.conventions import MODULATIONS, get_convention
-
-from conftest import TableModem
 
 
 def run(bench, name, **opts):

@@ -13,13 +13,12 @@ import sys
 import textwrap
 
 import pytest
+from _cmodems import write_device
 
 from modemverify.adapters.registry import ENTRY_POINT_GROUP, available_adapters
 from modemverify.config import load_device, parse_device
 from modemverify.errors import ConfigError, UnknownNameError
 from modemverify.runner import check
-
-from _cmodems import write_device
 
 PLUGIN = '''
 import numpy as np

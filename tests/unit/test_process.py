@@ -17,6 +17,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from _cmodems import CC, build_program, needs_cc, write_device
 
 from modemverify.adapters import _wire
 from modemverify.adapters.base import GuardedDevice
@@ -25,8 +26,6 @@ from modemverify.config import load_device
 from modemverify.dsp.formats import from_format
 from modemverify.errors import AdapterError, ConfigError, DeviceCrashed, DeviceTimeout
 from modemverify.runner import check
-
-from _cmodems import CC, build_program, needs_cc, write_device
 
 EXAMPLES = Path(__file__).resolve().parents[2] / "examples"
 S = 1 / np.sqrt(2)

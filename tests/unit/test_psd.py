@@ -8,11 +8,20 @@ import math
 
 import numpy as np
 import pytest
-from hypothesis import given, settings, strategies as st
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy import integrate, optimize, special
 
-from modemverify.dsp.psd import (MaskResult, aclr, channel_power, mask_check, mask_level_db,
-                                 occupied_bandwidth, welch_psd, x_db_bandwidth)
+from modemverify.dsp.psd import (
+    MaskResult,
+    aclr,
+    channel_power,
+    mask_check,
+    mask_level_db,
+    occupied_bandwidth,
+    welch_psd,
+    x_db_bandwidth,
+)
 from modemverify.dsp.pulses import PulseShape
 from modemverify.errors import ConfigError
 

@@ -18,16 +18,21 @@ from pathlib import Path
 import numpy as np
 import pytest
 import yaml
+from _cmodems import write_device
 
 from modemverify.adapters.recorded import RecordedAdapter
 from modemverify.config import load_device
 from modemverify.dsp.formats import from_format
 from modemverify.errors import AdapterError, ConfigError
 from modemverify.runner import check
-from modemverify.vectors.recording import (SHIPPED_SETS, Segment, VectorSet, golden_vector_set,
-                                           read_vector_set, write_vector_set)
-
-from _cmodems import write_device
+from modemverify.vectors.recording import (
+    SHIPPED_SETS,
+    Segment,
+    VectorSet,
+    golden_vector_set,
+    read_vector_set,
+    write_vector_set,
+)
 
 ROOT = Path(__file__).resolve().parents[2]
 VECTORS = ROOT / "vectors"

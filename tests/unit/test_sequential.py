@@ -16,9 +16,15 @@ from scipy import stats
 
 from modemverify.errors import ConfigError
 from modemverify.schemes.theory import ber, ebn0_for_ber
-from modemverify.stats import (Decision, Sprt, clopper_pearson, expected_sample_size,
-                               fixed_sample_size, operating_characteristic, wald_thresholds)
-
+from modemverify.stats import (
+    Decision,
+    Sprt,
+    clopper_pearson,
+    expected_sample_size,
+    fixed_sample_size,
+    operating_characteristic,
+    wald_thresholds,
+)
 
 # ---------------------------------------------------------------------------------------------
 # thresholds

@@ -15,6 +15,14 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from _cmodems import (
+    CC,
+    QAM16_INT16_C,
+    build_library,
+    needs_cc,
+    qpsk_sharedlib,
+    write_device,
+)
 
 from modemverify.adapters.base import GuardedDevice
 from modemverify.adapters.isolated import IsolatedAdapter
@@ -22,8 +30,6 @@ from modemverify.adapters.sharedlib import SharedLibAdapter
 from modemverify.config import load_device
 from modemverify.errors import AdapterError, ConfigError, DeviceOutputError
 from modemverify.runner import check
-
-from _cmodems import CC, QAM16_INT16_C, build_library, needs_cc, qpsk_sharedlib, write_device
 
 pytestmark = needs_cc
 

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from hypothesis import HealthCheck, given, find, settings
+from hypothesis import HealthCheck, find, given, settings
 
 from modemverify.errors import ConfigError
 from modemverify.vectors.strategies import bit_sequences, label_sequences

@@ -13,8 +13,16 @@ from scipy import integrate, stats
 
 from modemverify.errors import ConfigError, UnknownNameError
 from modemverify.schemes import theory
-from modemverify.schemes.theory import (THEORY_MODULATIONS, ber, ebn0_for_ber, psk_ber, psk_ser,
-                                        qam_ber, qam_ser, ser)
+from modemverify.schemes.theory import (
+    THEORY_MODULATIONS,
+    ber,
+    ebn0_for_ber,
+    psk_ber,
+    psk_ser,
+    qam_ber,
+    qam_ser,
+    ser,
+)
 
 
 def lin(db):

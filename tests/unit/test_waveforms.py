@@ -10,16 +10,14 @@ limits are 3GPP TS 38.104 6.5.2.2, Table 6.5.2.2-1.
 
 from __future__ import annotations
 
-
 import numpy as np
 import pytest
 
 from modemverify.adapters.python import PythonAdapter
 from modemverify.compare import compare
 from modemverify.config import parse_device
-from modemverify.runner import check
-
 from modemverify.demo.tern_modems import TernRrcModem as RrcModem  # noqa: E402
+from modemverify.runner import check
 
 RRC = {"shape": "rrc", "rolloff": 0.35, "span": 10}
 FAST = {"ber": {"ebn0_db": [8.0, 10.0]}, "llr": False,
