@@ -10,36 +10,28 @@ first use, so that ``import modemverify`` stays cheap for worker and device proc
 
 from __future__ import annotations
 
-import importlib
-
+from ._door import lazy_door
 from ._version import __version__
 
 _EXPORTS = {
+    # running checks
+    "check": "runner", "check_object": "runner", "RunResult": "runner", "Subject": "runner",
+    "identify": "identify", "IdentifyResult": "identify", "compare": "compare",
+    "Verdict": "verdict",
+    # device files
+    "DeviceSpec": "spec", "SchemeSpec": "spec", "load_device": "config",
+    "parse_device": "config",
+    # conventions
+    "CONVENTIONS": "schemes.conventions", "MODULATIONS": "schemes.conventions",
+    "Convention": "schemes.conventions", "get_convention": "schemes.conventions",
+    # for plugin and check authors: an adapter, an oracle on a bench, typed options
+    "ModemAdapter": "adapters.base", "Oracle": "oracles.base", "Bench": "bench",
+    "Opt": "options",
+    # errors
     "AdapterError": "errors", "ConfigError": "errors", "DeviceCrashed": "errors",
     "DeviceOutputError": "errors", "DeviceTimeout": "errors", "ModemVerifyError": "errors",
     "UnknownNameError": "errors",
-    "DeviceSpec": "spec", "load_device": "config", "parse_device": "config",
-    "identify": "identify",
-    "RunResult": "runner", "check": "runner", "check_object": "runner",
-    "CONVENTIONS": "schemes.conventions", "MODULATIONS": "schemes.conventions",
-    "Convention": "schemes.conventions", "get_convention": "schemes.conventions",
-    "Verdict": "verdict",
 }
-#: classes shown as ``modemverify.X`` in reprs and docs
-_PUBLIC_CLASSES = {"Verdict", "DeviceSpec", "RunResult", "Convention"}
 
 __all__ = ["__version__", *sorted(_EXPORTS)]
-
-
-def __getattr__(name: str):
-    if name not in _EXPORTS:
-        raise AttributeError(f"module 'modemverify' has no attribute {name!r}")
-    value = getattr(importlib.import_module(f".{_EXPORTS[name]}", __name__), name)
-    if name in _PUBLIC_CLASSES:
-        value.__module__ = "modemverify"
-    globals()[name] = value
-    return value
-
-
-def __dir__():
-    return __all__
+__getattr__, __dir__ = lazy_door(__name__, _EXPORTS, public_module=__name__)

@@ -21,6 +21,10 @@ from .schemes.reference import ReferenceModem
 from .spec import DeviceSpec
 from .vectors.prbs import prbs
 
+__all__ = [
+    "Bench", "ALIGNMENT_PROBE_SYMBOLS", "AppliedAlignment", "measure_alignment", "open_bench",
+]
+
 
 @dataclass
 class Bench:

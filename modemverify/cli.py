@@ -28,6 +28,11 @@ from .schemes.theory import THEORY_MODULATIONS, ber, ebn0_for_ber, ser
 from .session import EXIT_FAIL, EXIT_INTERRUPTED, EXIT_OK, EXIT_USAGE, run_and_report
 from .vectors.recording import SHIPPED_SETS, export_golden
 
+__all__ = [
+    "build_parser", "main", "cmd_check", "cmd_theory", "cmd_compare", "cmd_checks",
+    "cmd_identify", "cmd_vectors_export",
+]
+
 
 class _Parser(argparse.ArgumentParser):
     def error(self, message):  # argparse exits 2 on usage errors, as we do

@@ -33,6 +33,8 @@ from .spec import DeviceSpec
 from .vectors.bits import random_bits
 from .verdict import Verdict
 
+__all__ = ["DEFAULTS", "compare"]
+
 DEFAULTS = {"symbols": 1 << 14, "sample_error_percent": None, "evm_limit_percent": None,
             "spectrum_tolerance_db": 1.0, "spectrum_floor_db": 40.0}
 

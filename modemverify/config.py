@@ -20,6 +20,11 @@ from .oracles import validate_checks
 from .schemes.conventions import CONVENTIONS, MODULATIONS, get_convention
 from .spec import DEFAULT_TIMEOUT_S, DeviceSpec, SchemeSpec
 
+__all__ = [
+    "COMMON_OPTIONS", "SCHEME_OPTIONS", "PULSE_OPTIONS", "ALIGNMENT_OPTIONS", "load_device",
+    "parse_device",
+]
+
 
 def _non_empty(text: str) -> str | None:
     return None if text.strip() else "expected non-empty text"

@@ -8,6 +8,11 @@ misbehaved (:class:`AdapterError` and its subclasses), or a name was looked up t
 
 from __future__ import annotations
 
+__all__ = [
+    "ModemVerifyError", "ConfigError", "UnknownNameError", "AdapterError", "DeviceOutputError",
+    "DeviceTimeout", "DeviceCrashed",
+]
+
 
 class ModemVerifyError(Exception):
     """Root of every exception modemverify raises on purpose."""

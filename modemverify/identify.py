@@ -18,6 +18,8 @@ from .schemes.labels import hamming, label_string
 from .schemes.transforms import DEFAULT_TOLERANCE, relate
 from .spec import DeviceSpec
 
+__all__ = ["IdentifyResult", "identify", "render_identification"]
+
 
 @dataclass(frozen=True)
 class IdentifyResult:

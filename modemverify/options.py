@@ -17,6 +17,8 @@ import numpy as np
 
 from .errors import ConfigError
 
+__all__ = ["Opt", "validate_options", "whole_number", "as_1d_complex", "number_in"]
+
 
 @dataclass(frozen=True)
 class Opt:

@@ -24,6 +24,11 @@ from .oracles import ORACLES
 from .spec import DeviceSpec, SchemeSpec
 from .verdict import OUTCOMES, Verdict, gates
 
+__all__ = [
+    "DEFAULT_SEED", "Subject", "RunResult", "check_seed", "guarded", "run_oracle", "check",
+    "check_object",
+]
+
 DEFAULT_SEED = 1
 
 

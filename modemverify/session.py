@@ -16,6 +16,8 @@ from .report.junit import write_junit
 from .report.progress import ProgressLine
 from .runner import RunResult, Subject, check
 
+__all__ = ["EXIT_OK", "EXIT_FAIL", "EXIT_USAGE", "EXIT_INTERRUPTED", "run_and_report"]
+
 EXIT_OK, EXIT_FAIL, EXIT_USAGE, EXIT_INTERRUPTED = 0, 1, 2, 130
 
 

@@ -13,6 +13,8 @@ from typing import Any
 from .dsp.pulses import PulseShape
 from .schemes.conventions import MODULATIONS, Convention, get_convention
 
+__all__ = ["DEFAULT_TIMEOUT_S", "SchemeSpec", "DeviceSpec"]
+
 #: default of ``timeout_s``
 DEFAULT_TIMEOUT_S = 10.0
 

@@ -10,6 +10,8 @@ import math
 from dataclasses import asdict, dataclass, field, replace
 from typing import Any
 
+__all__ = ["OUTCOMES", "GATING", "gates", "ranked", "Verdict"]
+
 #: outcomes, in the order a summary lists them
 OUTCOMES = ("fail", "error", "inconclusive", "pass", "skipped")
 

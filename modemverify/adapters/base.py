@@ -30,6 +30,8 @@ from ..errors import AdapterError, DeviceOutputError
 from ..options import Opt
 from ..spec import DeviceSpec
 
+__all__ = ["CAPABILITIES", "ModemAdapter", "summarise_bits", "summarise_samples", "GuardedDevice"]
+
 CAPABILITIES = ("modulate", "demodulate", "demodulate_soft")
 
 

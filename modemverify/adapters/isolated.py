@@ -475,5 +475,7 @@ def _send_result(conn, out) -> None:
     _send_array(conn, arr)
 
 
-__all__ = ["IsolatedAdapter", "open_adapter", "describe_exit", "HangGuard", "OPEN_TIMEOUT_S",
-           "MAX_CONSECUTIVE_TIMEOUTS"]
+__all__ = [
+    "IsolatedAdapter", "open_adapter", "describe_exit", "HangGuard", "OPEN_TIMEOUT_S",
+    "MAX_CONSECUTIVE_TIMEOUTS", "STDERR_QUOTE", "CHUNK",
+]

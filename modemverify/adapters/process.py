@@ -44,6 +44,8 @@ from . import _wire
 from .base import ModemAdapter, summarise_bits, summarise_samples
 from .isolated import OPEN_TIMEOUT_S, STDERR_QUOTE, HangGuard, describe_exit
 
+__all__ = ["PYTHON_PLACEHOLDER", "STDERR_KEEP", "CHUNK", "ProcessAdapter"]
+
 PYTHON_PLACEHOLDER = "{python}"
 #: how much of the process's stderr is kept (the tail)
 STDERR_KEEP = 1 << 16

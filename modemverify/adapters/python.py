@@ -27,6 +27,8 @@ from ..dsp.formats import (
 from ..errors import AdapterError, ConfigError, DeviceOutputError
 from .base import CAPABILITIES, ModemAdapter
 
+__all__ = ["load_target", "validate_format_keys", "decode_output", "PythonAdapter"]
+
 
 def load_target(target: str, base_dir: Path, *, file: str | None = None):
     """Import ``FILE.py:NAME`` or ``module:NAME`` and return the named object."""

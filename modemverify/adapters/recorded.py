@@ -37,6 +37,8 @@ from ..schemes.labels import bits_to_labels
 from ..vectors.recording import read_vector_set
 from .base import ModemAdapter, summarise_bits, summarise_samples
 
+__all__ = ["SIGMF_SUFFIXES", "SIGMF_BITS_KEY", "SIGMF_DATATYPES", "RecordedAdapter"]
+
 SIGMF_SUFFIXES = (".sigmf-meta", ".sigmf-data", ".sigmf")
 SIGMF_BITS_KEY = "modemverify:bits"
 SIGMF_DATATYPES = ("cf32_le", "ci16_le")

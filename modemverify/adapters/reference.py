@@ -12,6 +12,8 @@ from ..schemes.conventions import get_convention
 from ..schemes.reference import ReferenceModem
 from .base import ModemAdapter
 
+__all__ = ["ReferenceAdapter"]
+
 
 class ReferenceAdapter(ModemAdapter):
     adapter_id = "reference"

@@ -17,6 +17,8 @@ from importlib.metadata import entry_points
 from ..errors import ConfigError, UnknownNameError
 from .base import ModemAdapter
 
+__all__ = ["ENTRY_POINT_GROUP", "BUILTIN", "available_adapters", "get_adapter_class"]
+
 ENTRY_POINT_GROUP = "modemverify.adapters"
 
 #: built-in adapters, "module:Class", imported lazily

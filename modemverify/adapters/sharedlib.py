@@ -46,6 +46,8 @@ from ..errors import AdapterError, ConfigError, DeviceOutputError
 from ..options import Opt
 from .base import ModemAdapter, summarise_bits, summarise_samples
 
+__all__ = ["SYMBOL_KEYS", "GUARD", "SharedLibAdapter"]
+
 SYMBOL_KEYS = ("modulate", "demodulate", "demodulate_soft")
 _C_IDENTIFIER = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
 #: elements after each output buffer that the device must leave alone

@@ -7,6 +7,8 @@ formulas, so that a defect here is a defect the harness has to find.
 
 import numpy as np
 
+__all__ = ["TernModem", "rrc_taps", "symbols_3gpp", "TernRrcModem"]
+
 
 def _axis_16qam(sign_bit, mag_bit, *, natural=False):
     """One axis of 16QAM: TS 38.211 5.1.4 gives (1-2*s) * (2 - (1-2*m))."""

@@ -29,13 +29,8 @@ from modemverify.errors import ConfigError, UnknownNameError
 from ..options import as_1d_complex
 
 __all__ = [
-    "DEFAULT_EVM_LIMITS",
-    "EVM_MODULATIONS",
-    "EvmResult",
-    "evm",
-    "evm_limit",
-    "snr_db_from_evm",
-    "evm_from_snr_db",
+    "DEFAULT_EVM_LIMITS", "EVM_MODULATIONS", "EvmResult", "evm", "evm_limit",
+    "snr_db_from_evm", "evm_from_snr_db",
 ]
 
 #: Base-station EVM limits in percent, 3GPP TS 38.104, 6.5.2.2, Table 6.5.2.2-1 (NR; the same

@@ -43,9 +43,11 @@ import numpy as np
 from ..errors import ConfigError, UnknownNameError
 from ..options import Opt, as_1d_complex
 
-__all__ = ["SampleFormat", "SAMPLE_FORMATS", "PYTHON_FORMATS", "WIRE_FORMATS", "parse_format",
-           "check_format", "check_full_scale", "encode_samples", "to_format", "from_format",
-           "clip_count", "sqnr_db"]
+__all__ = [
+    "SampleFormat", "SAMPLE_FORMATS", "PYTHON_FORMATS", "WIRE_FORMATS", "parse_format",
+    "check_format", "check_full_scale", "encode_samples", "to_format", "from_format",
+    "clip_count", "sqnr_db", "sample_format_opt", "full_scale_opt",
+]
 
 
 @dataclass(frozen=True)

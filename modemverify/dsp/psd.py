@@ -27,14 +27,8 @@ from modemverify.errors import ConfigError
 from ..options import as_1d_complex
 
 __all__ = [
-    "welch_psd",
-    "occupied_bandwidth",
-    "x_db_bandwidth",
-    "MaskResult",
-    "mask_level_db",
-    "mask_check",
-    "channel_power",
-    "aclr",
+    "welch_psd", "occupied_bandwidth", "x_db_bandwidth", "MaskResult", "mask_level_db",
+    "mask_check", "channel_power", "aclr",
 ]
 
 # Default frequency resolution: 256 bins per symbol rate at most (finer only costs averages),

@@ -18,6 +18,8 @@ from ..options import Opt
 from ..verdict import Verdict
 from .base import Oracle
 
+__all__ = ["AlignmentOracle", "ORACLE"]
+
 
 class AlignmentOracle(Oracle):
     name = "alignment"

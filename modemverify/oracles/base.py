@@ -16,6 +16,8 @@ from ..bench import Bench
 from ..options import Opt
 from ..verdict import Verdict
 
+__all__ = ["Oracle"]
+
 
 class Oracle:
     """One property. Subclasses set the class attributes and implement :meth:`run`."""

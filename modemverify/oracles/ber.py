@@ -46,6 +46,8 @@ from ..vectors.channels import Awgn, channel_from_config
 from ..verdict import Verdict
 from .base import Oracle
 
+__all__ = ["MIN_SUB_BLOCK", "FIRST_BLOCK", "MIN_BURST_BLOCKS", "BerOracle", "ORACLE"]
+
 #: shortest sub-block (bits) of the error counts the over-dispersion test uses
 MIN_SUB_BLOCK = 8192
 #: bits in the first block of a point (blocks then double up to block_bits); enough sub-blocks

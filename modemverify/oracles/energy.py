@@ -14,6 +14,8 @@ from ..verdict import Verdict
 from ._table import measure_table
 from .base import Oracle
 
+__all__ = ["EnergyOracle", "ORACLE"]
+
 
 class EnergyOracle(Oracle):
     name = "energy"

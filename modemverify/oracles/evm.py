@@ -23,6 +23,8 @@ from ..vectors.bits import random_bits
 from ..verdict import Verdict
 from .base import Oracle
 
+__all__ = ["EvmOracle", "ORACLE"]
+
 
 class EvmOracle(Oracle):
     name = "evm"

@@ -9,6 +9,8 @@ from ..vectors.coverage import exhaustive_bits
 from ..verdict import Verdict
 from .base import Oracle
 
+__all__ = ["FiniteOracle", "ORACLE"]
+
 
 class FiniteOracle(Oracle):
     name = "finite"

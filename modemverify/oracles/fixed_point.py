@@ -23,6 +23,8 @@ from ..vectors.bits import random_bits
 from ..verdict import Verdict
 from .base import Oracle
 
+__all__ = ["DEFAULT_MIN_SQNR_DB", "FixedPointOracle", "ORACLE"]
+
 DEFAULT_MIN_SQNR_DB = {"int16": 40.0, "int8": 20.0}
 
 

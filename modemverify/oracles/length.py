@@ -14,6 +14,8 @@ from ..vectors.prbs import prbs
 from ..verdict import Verdict
 from .base import Oracle
 
+__all__ = ["DEFAULT_LENGTHS", "LengthOracle", "ORACLE"]
+
 #: symbol counts tried: small ones, powers of two and their neighbours, odd block sizes
 DEFAULT_LENGTHS = [1, 2, 3, 4, 5, 7, 8, 9, 15, 16, 17, 31, 32, 33, 63, 64, 65, 100, 127, 128,
                    129, 255, 256, 257, 1000, 1023, 1024, 1025, 4096]

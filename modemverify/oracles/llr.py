@@ -34,6 +34,8 @@ from ..vectors.channels import Awgn
 from ..verdict import Verdict
 from .base import Oracle
 
+__all__ = ["mutual_information", "best_scale", "LlrOracle", "ORACLE"]
+
 
 def _nll(scale: float, llr: np.ndarray, sign: np.ndarray) -> float:
     """Mean negative log-likelihood (nats) of the bits under LLRs scaled by ``scale``."""

@@ -18,6 +18,8 @@ from ..verdict import Verdict
 from ._table import measure_table
 from .base import Oracle
 
+__all__ = ["MappingOracle", "ORACLE"]
+
 
 def _fmt_point(z: complex) -> str:
     return f"{z.real:+.4f}{z.imag:+.4f}j"

@@ -24,6 +24,8 @@ from ..vectors.strategies import bit_sequences
 from ..verdict import Verdict
 from .base import Oracle
 
+__all__ = ["RoundtripOracle", "ORACLE"]
+
 
 def _bits_text(bits: np.ndarray, k: int) -> str:
     s = "".join(map(str, bits.tolist()))

@@ -25,6 +25,8 @@ from ..vectors.bits import random_bits
 from ..verdict import Verdict
 from .base import Oracle
 
+__all__ = ["SpectrumOracle", "ORACLE"]
+
 
 def _mask(v):
     try:

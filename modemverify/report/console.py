@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from ..verdict import ranked
 
+__all__ = ["TAGS", "render_run", "render_totals"]
+
 TAGS = {"pass": "PASS", "fail": "FAIL", "error": "ERROR", "inconclusive": "INCONCL",
         "skipped": "skip"}
 

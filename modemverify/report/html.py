@@ -12,6 +12,8 @@ from ..verdict import ranked
 from .junit import write_atomic
 from .plots import PLOTTERS
 
+__all__ = ["CSS", "write_report"]
+
 CSS = """
 body{font-family:system-ui,sans-serif;margin:2em;max-width:72em;color:#222}
 h1{font-size:1.5em}h2{font-size:1.2em;margin-top:2em;border-bottom:1px solid #ccc}

@@ -14,6 +14,8 @@ from junit_xml import TestCase, TestSuite, to_xml_report_string
 
 from .._version import __version__
 
+__all__ = ["suite_for", "junit_xml", "write_atomic", "write_junit"]
+
 
 def suite_for(result) -> TestSuite:
     subject = result.subject

@@ -13,6 +13,8 @@ import numpy as np
 
 from ..schemes.theory import ber as theory_ber
 
+__all__ = ["Figure", "constellation_plot", "waterfall_plot", "psd_plot", "eye_plot", "PLOTTERS"]
+
 
 @dataclass(frozen=True)
 class Figure:

@@ -6,6 +6,8 @@ import os
 import sys
 import time
 
+__all__ = ["ProgressLine"]
+
 
 class ProgressLine:
     """``progress(name, fraction, text)`` callable that redraws one line at most 10 times/s."""

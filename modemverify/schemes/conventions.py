@@ -30,6 +30,11 @@ from ..errors import ConfigError, UnknownNameError
 from .geometry import nearest_neighbour_pairs
 from .labels import gray_code, hamming, labels_to_bits
 
+__all__ = [
+    "MODULATIONS", "CONVENTION_ORDER", "Convention", "CONVENTIONS", "get_convention",
+    "conventions_for",
+]
+
 #: modulation name -> bits per symbol
 MODULATIONS: dict[str, int] = {
     "bpsk": 1, "qpsk": 2, "8psk": 3, "16qam": 4, "64qam": 6, "256qam": 8,

@@ -4,6 +4,11 @@ from __future__ import annotations
 
 import numpy as np
 
+__all__ = [
+    "DISTANCE_RTOL", "MEASURED_RTOL", "all_distinct", "distance_matrix", "minimum_distance",
+    "nearest_neighbour_pairs", "rotational_symmetry_deg",
+]
+
 #: relative slack when deciding that two distances are "the same" (float32 devices, rounding)
 DISTANCE_RTOL = 1e-3
 #: the same for measured tables (filter truncation, fixed point): the next distance in every

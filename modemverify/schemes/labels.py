@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import numpy as np
 
+__all__ = ["bits_to_labels", "labels_to_bits", "label_string", "hamming", "gray_code"]
+
 
 def bits_to_labels(bits: np.ndarray, bits_per_symbol: int) -> np.ndarray:
     """Group a 0/1 array into labels, first bit of each group most significant.

@@ -14,6 +14,8 @@ from ..dsp.pulses import PulseShape
 from .conventions import Convention
 from .labels import labels_to_bits
 
+__all__ = ["ReferenceModem"]
+
 
 class ReferenceModem:
     """Modulate, slice and demap with a :class:`Convention`'s table.

@@ -56,17 +56,8 @@ from modemverify.errors import ConfigError, UnknownNameError
 from modemverify.schemes.labels import gray_code, hamming
 
 __all__ = [
-    "THEORY_MODULATIONS",
-    "ber",
-    "ser",
-    "ebn0_for_ber",
-    "DEFAULT_BER_TARGETS",
-    "default_ebn0_points",
-    "psk_ser",
-    "psk_ber",
-    "qam_ser",
-    "qam_ber",
-    "q_function",
+    "THEORY_MODULATIONS", "ber", "ser", "ebn0_for_ber", "DEFAULT_BER_TARGETS",
+    "default_ebn0_points", "psk_ser", "psk_ber", "qam_ser", "qam_ber", "q_function",
 ]
 
 #: Names accepted by :func:`ber`, :func:`ser` and :func:`ebn0_for_ber`.

@@ -272,8 +272,10 @@ def describe_reassignment(assignment: tuple[int, ...], k: int) -> str:
     return f"{len(moved)} labels moved: {shown}" + (" ..." if len(moved) > 6 else "")
 
 
-__all__ = ["Relation", "relate", "candidate_relations", "differing_labels",
-           "identity_assignment", "describe_reassignment", "DEFAULT_TOLERANCE"]
+__all__ = [
+    "Relation", "relate", "candidate_relations", "differing_labels", "identity_assignment",
+    "describe_reassignment", "DEFAULT_TOLERANCE", "explain_difference",
+]
 
 
 def explain_difference(reference: np.ndarray, device: np.ndarray, bad: list[int], gain: float,

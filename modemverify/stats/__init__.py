@@ -9,48 +9,14 @@
 * :mod:`~modemverify.stats.loss` -- implementation loss in dB with its interval.
 """
 
-from modemverify.stats.intervals import (
-    DISPERSION_ALPHA,
-    ConfidenceInterval,
-    DispersionTest,
-    block_interval,
-    clopper_pearson,
-    dispersion_test,
-    lower_bound,
-    upper_bound,
-)
-from modemverify.stats.loss import (
-    LossEstimate,
-    implementation_loss_db,
-    loss_from_counts,
-)
-from modemverify.stats.sequential import (
-    Decision,
-    Sprt,
-    SprtState,
-    expected_sample_size,
-    fixed_sample_size,
-    operating_characteristic,
-    wald_thresholds,
-)
+from __future__ import annotations
 
-__all__ = [
-    "DISPERSION_ALPHA",
-    "ConfidenceInterval",
-    "Decision",
-    "DispersionTest",
-    "LossEstimate",
-    "Sprt",
-    "SprtState",
-    "block_interval",
-    "clopper_pearson",
-    "dispersion_test",
-    "expected_sample_size",
-    "fixed_sample_size",
-    "implementation_loss_db",
-    "loss_from_counts",
-    "lower_bound",
-    "operating_characteristic",
-    "upper_bound",
-    "wald_thresholds",
-]
+from . import intervals, loss, sequential
+
+#: the submodules whose ``__all__`` this door re-exports
+_SUBMODULES = (intervals, sequential, loss,)
+_NAMES = {m.__name__.rsplit(".", 1)[1] for m in _SUBMODULES}
+#: every public name of those submodules, except one that would hide a submodule of the same
+#: name (``vectors.prbs`` is the submodule; its generator is ``vectors.prbs.prbs``)
+__all__ = [n for m in _SUBMODULES for n in m.__all__ if n not in _NAMES]
+globals().update({n: getattr(m, n) for m in _SUBMODULES for n in m.__all__ if n not in _NAMES})

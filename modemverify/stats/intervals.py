@@ -32,14 +32,8 @@ from modemverify.errors import ConfigError
 from modemverify.options import number_in, whole_number
 
 __all__ = [
-    "DISPERSION_ALPHA",
-    "ConfidenceInterval",
-    "DispersionTest",
-    "clopper_pearson",
-    "upper_bound",
-    "lower_bound",
-    "dispersion_test",
-    "block_interval",
+    "DISPERSION_ALPHA", "ConfidenceInterval", "DispersionTest", "clopper_pearson",
+    "upper_bound", "lower_bound", "dispersion_test", "block_interval",
 ]
 
 

@@ -42,13 +42,8 @@ from modemverify.errors import ConfigError
 from modemverify.options import number_in, whole_number
 
 __all__ = [
-    "Decision",
-    "SprtState",
-    "Sprt",
-    "wald_thresholds",
-    "fixed_sample_size",
-    "operating_characteristic",
-    "expected_sample_size",
+    "Decision", "SprtState", "Sprt", "wald_thresholds", "fixed_sample_size",
+    "operating_characteristic", "expected_sample_size",
 ]
 
 

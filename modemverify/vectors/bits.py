@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
+__all__ = ["random_bits"]
+
 
 def random_bits(rng: np.random.Generator, n: int) -> np.ndarray:
     """``n`` independent, equiprobable bits (uint8 0/1) from ``rng``.

@@ -28,15 +28,8 @@ from modemverify.options import whole_number as _check_int
 from modemverify.vectors.coverage import MAX_BITS_PER_SYMBOL
 
 __all__ = [
-    "Awgn",
-    "PhaseOffset",
-    "FrequencyOffset",
-    "IqImbalance",
-    "DcOffset",
-    "Quantise",
-    "Channel",
-    "CHANNEL_KINDS",
-    "channel_from_config",
+    "Awgn", "PhaseOffset", "FrequencyOffset", "IqImbalance", "DcOffset", "Quantise", "Channel",
+    "CHANNEL_KINDS", "channel_from_config",
 ]
 
 

@@ -18,13 +18,8 @@ from modemverify.options import whole_number
 from modemverify.schemes.labels import labels_to_bits
 
 __all__ = [
-    "MAX_BITS_PER_SYMBOL",
-    "MAX_DE_BRUIJN_LENGTH",
-    "exhaustive_labels",
-    "exhaustive_bits",
-    "de_bruijn",
-    "de_bruijn_labels",
-    "de_bruijn_bits",
+    "MAX_BITS_PER_SYMBOL", "MAX_DE_BRUIJN_LENGTH", "exhaustive_labels", "exhaustive_bits",
+    "de_bruijn", "de_bruijn_labels", "de_bruijn_bits",
 ]
 
 #: Largest bits_per_symbol accepted by the vector sources. The bundled schemes stop at 10

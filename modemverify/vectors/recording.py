@@ -60,6 +60,12 @@ from ..schemes.reference import ReferenceModem
 from .coverage import de_bruijn_labels, exhaustive_labels
 from .prbs import prbs
 
+__all__ = [
+    "FORMAT", "VERSION", "CALLS", "GOLDEN_SEGMENTS", "SHIPPED_SETS", "Segment", "VectorSet",
+    "default_segments", "golden_vector_set", "write_vector_set", "export_golden",
+    "read_vector_set",
+]
+
 FORMAT = "modemverify-vectors"
 VERSION = 1
 CALLS = ("modulate", "demodulate")

@@ -271,8 +271,8 @@ def test_a_python_device_process_imports_numpy_and_no_more_of_modemverify_than_t
                    and m not in sys.stdlib_module_names and m != "numpy"}
     assert not third_party, third_party
     assert {m for m in loaded if m.startswith("modemverify")} <= {
-        "modemverify", "modemverify._version", "modemverify.errors", "modemverify.options",
-        "modemverify.dsp", "modemverify.dsp.formats", "modemverify.adapters",
+        "modemverify", "modemverify._version", "modemverify._door", "modemverify.errors",
+        "modemverify.options", "modemverify.dsp", "modemverify.dsp.formats", "modemverify.adapters",
         "modemverify.adapters._wire"}
 
 
