@@ -58,7 +58,8 @@ class Verdict:
     duration_s : float
         Time the oracle took.
     details : dict
-        JSON-serialisable extras for reports (tables, per-label errors, bits used).
+        JSON-serialisable extras for reports (tables, per-label errors, bits used); the verdicts
+        that reports draw from carry a typed record of :mod:`modemverify.records`.
     """
 
     name: str

@@ -32,6 +32,7 @@ import numpy as np
 
 from ..bench import Bench
 from ..options import Opt
+from ..records import BerPointRecord
 from ..schemes.theory import THEORY_MODULATIONS, default_ebn0_points
 from ..schemes.theory import ber as theory_ber
 from ..stats import (
@@ -199,7 +200,7 @@ class BerOracle(Oracle):
             r = clopper_pearson(errors, bits_sent, conf)
         interval = (float(r.low), float(r.high))
         loss = implementation_loss_db(mod, ebn0, ber, interval)
-        details = {
+        details: BerPointRecord = {
             "ebn0_db": ebn0, "theory_ber": p0, "limit_ber": p1, "margin_db": opts["margin_db"],
             "bits": bits_sent, "errors": errors, "decided_after_bits": used_bits,
             "decided_after_errors": used_errors, "method": method, "risk": risk,

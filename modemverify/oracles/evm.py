@@ -18,6 +18,7 @@ from scipy import signal
 from ..dsp.evm import evm as evm_of
 from ..dsp.evm import evm_limit
 from ..options import Opt
+from ..records import EvmRecord, EyeRecord
 from ..schemes.labels import bits_to_labels, label_string
 from ..vectors.bits import random_bits
 from ..verdict import Verdict
@@ -66,7 +67,7 @@ class EvmOracle(Oracle):
         worst = sorted(res.per_label.items(), key=lambda kv: -kv[1][1])[:4]
         per_label = {label_string(int(l), k): [float(abs(mean)), float(rms)]
                      for l, (mean, rms) in res.per_label.items()}
-        details = {"rms_percent": res.rms_percent, "rms_db": res.rms_db,
+        details: EvmRecord = {"rms_percent": res.rms_percent, "rms_db": res.rms_db,
                    "peak_percent": res.peak_percent, "limit_percent": limit,
                    "per_label": per_label,
                    "cloud": [[float(z.real), float(z.imag)] for z in measured[core][:2000]],
@@ -84,7 +85,7 @@ class EvmOracle(Oracle):
                         details=details)]
 
 
-def _eye_traces(bench, raw, n, traces=120):
+def _eye_traces(bench, raw, n, traces=120) -> EyeRecord:
     """In-phase matched-filter output around 120 symbol peaks, two symbols wide (eye diagram)."""
     x = bench.aligned_waveform(raw, n)
     pulse = bench.spec.scheme.pulse

@@ -12,6 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..options import Opt
+from ..records import MappingRecord
 from ..schemes.labels import label_string
 from ..schemes.transforms import DEFAULT_TOLERANCE, differing_labels, explain_difference
 from ..verdict import Verdict
@@ -39,7 +40,7 @@ class MappingOracle(Oracle):
         conv = bench.convention
         k = bench.k
         tol = opts["tolerance"]
-        details = {"table": {label_string(l, k): [float(p.real), float(p.imag)]
+        details: MappingRecord = {"table": {label_string(l, k): [float(p.real), float(p.imag)]
                              for l, p in enumerate(table.points)},
                    "probe": table.source}
         memory = np.nonzero(table.spread > tol)[0]

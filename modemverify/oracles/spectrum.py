@@ -21,6 +21,7 @@ from __future__ import annotations
 from ..dsp.psd import aclr, mask_check, occupied_bandwidth, welch_psd, x_db_bandwidth
 from ..errors import ConfigError
 from ..options import Opt
+from ..records import SpectrumRecord
 from ..vectors.bits import random_bits
 from ..verdict import Verdict
 from .base import Oracle
@@ -83,7 +84,7 @@ class SpectrumOracle(Oracle):
         width, lo, hi = occupied_bandwidth(f, psd, 0.99)
         xw, xlo, xhi = x_db_bandwidth(f, psd, opts["x_db"])
         keep = slice(None, None, max(1, len(f) // 2048))
-        details = {"f_rs": f[keep].tolist(), "psd": psd[keep].tolist(), "obw_rs": width,
+        details: SpectrumRecord = {"f_rs": f[keep].tolist(), "psd": psd[keep].tolist(), "obw_rs": width,
                    "obw_edges_rs": [lo, hi], "expected_obw_rs": expected,
                    "x_db": opts["x_db"], "x_db_width_rs": xw, "x_db_edges_rs": [xlo, xhi],
                    "mask": opts["mask"], "pulse": bench.spec.scheme.describe()}

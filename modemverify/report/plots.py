@@ -8,9 +8,11 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from pathlib import Path
+from typing import cast
 
 import numpy as np
 
+from ..records import BerPointRecord, EvmRecord, MappingRecord, SpectrumRecord
 from ..schemes.theory import ber as theory_ber
 
 __all__ = ["Figure", "constellation_plot", "waterfall_plot", "psd_plot", "eye_plot", "PLOTTERS"]
@@ -47,7 +49,8 @@ def constellation_plot(result, folder: Path, stem: str) -> list[Figure]:
         return []
     plt = _pyplot()
     conv = result.subject.scheme.reference
-    table = mapping.details["table"]
+    record = cast(MappingRecord, mapping.details)
+    table = record["table"]
     labels = list(table)
     dev = np.array([complex(*table[l]) for l in labels])
     k = len(labels[0])
@@ -55,13 +58,13 @@ def constellation_plot(result, folder: Path, stem: str) -> list[Figure]:
     ref = conv.points
     evm_v = next((v for v in result.verdicts if v.name == "evm" and "cloud" in v.details), None)
     if evm_v is not None:
-        cloud = np.array(evm_v.details["cloud"])
+        cloud = np.array(cast(EvmRecord, evm_v.details)["cloud"])
         ax.scatter(cloud[:, 0], cloud[:, 1], s=2, color="tab:orange", alpha=0.35,
                    label="device symbols (EVM probe)", zorder=1)
     ax.scatter(ref.real, ref.imag, s=260, facecolors="none", edgecolors="0.6",
                label=f"{conv.name} reference")
     finite = np.isfinite(dev)
-    bad = set(mapping.details.get("differing_labels", []))
+    bad = set(record.get("differing_labels", []))
     colours = ["tab:red" if l in bad else "tab:blue" for l in labels]
     ax.scatter(dev.real[finite], dev.imag[finite], s=18,
                c=[c for c, f in zip(colours, finite) if f], label="device", zorder=3)
@@ -94,8 +97,9 @@ def waterfall_plot(result, folder: Path, stem: str) -> list[Figure]:
         return []
     plt = _pyplot()
     mod = result.subject.scheme.modulation
-    x = np.array([v.details["ebn0_db"] for v in pts])
-    margin = pts[0].details["margin_db"]
+    records = [cast(BerPointRecord, v.details) for v in pts]
+    x = np.array([r["ebn0_db"] for r in records])
+    margin = records[0]["margin_db"]
     grid = np.linspace(x.min() - 2, x.max() + 1.5, 200)
     fig, ax = plt.subplots(figsize=(7, 4.8), dpi=100)
     ax.semilogy(grid, theory_ber(mod, grid), "k-", lw=1.2, label=f"theory ({mod}, AWGN)")
@@ -133,7 +137,7 @@ def psd_plot(result, folder: Path, stem: str) -> list[Figure]:
     if v is None:
         return []
     plt = _pyplot()
-    d = v.details
+    d = cast(SpectrumRecord, v.details)
     f = np.array(d["f_rs"])
     psd = np.array(d["psd"])
     db = 10 * np.log10(np.maximum(psd / psd.max(), 1e-15))
@@ -169,7 +173,7 @@ def eye_plot(result, folder: Path, stem: str) -> list[Figure]:
     if v is None or not v.details["eye"]["traces"]:
         return []
     plt = _pyplot()
-    eye = v.details["eye"]
+    eye = cast(EvmRecord, v.details)["eye"]
     sps = eye["sps"]
     t = (np.arange(2 * sps + 1) - sps) / sps
     fig, ax = plt.subplots(figsize=(6, 4), dpi=100)

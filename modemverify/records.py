@@ -1,0 +1,106 @@
+"""The typed records in :attr:`Verdict.details <modemverify.verdict.Verdict.details>`.
+
+A verdict's ``details`` is a JSON-serialisable mapping; the verdicts that reports draw from
+carry one of the records below (``TypedDict``: at run time a plain dict, so ``verdicts.json``
+is unchanged). Oracles build them; plotters and the HTML report read them and nothing else.
+Keys marked ``NotRequired`` appear only where the text says.
+"""
+
+# no ``from __future__ import annotations`` here: TypedDict reads NotRequired from the live
+# annotations
+from typing import TypedDict
+
+try:  # Python 3.11
+    from typing import NotRequired
+except ImportError:  # pragma: no cover - Python 3.10
+    from typing_extensions import NotRequired
+
+__all__ = ["MappingRecord", "EyeRecord", "EvmRecord", "BerPointRecord", "MaskRecord",
+           "SpectrumRecord"]
+
+
+class MappingRecord(TypedDict):
+    """``mapping``: the measured table."""
+
+    #: label string (bits in the order fed to modulate) -> [I, Q] of the device's point
+    table: dict[str, list[float]]
+    #: how the table was probed: ``modulate`` or ``demodulate``
+    probe: str
+    #: on a fail: the simplest relations to the claimed table (``Relation.to_json``)
+    relation: NotRequired[list[dict]]
+    #: on a fail: the labels whose point differs from the claim
+    differing_labels: NotRequired[list[str]]
+
+
+class EyeRecord(TypedDict):
+    """In-phase matched-filter output around symbol peaks, two symbols wide."""
+
+    sps: int
+    traces: list[list[float]]
+
+
+class EvmRecord(TypedDict):
+    """``evm``: the error vector and the symbols it was measured on."""
+
+    rms_percent: float
+    rms_db: float
+    peak_percent: float
+    limit_percent: float
+    #: label string -> [|mean error|, RMS error] in percent
+    per_label: dict[str, list[float]]
+    #: up to 2000 measured symbols [I, Q] and their labels (integers)
+    cloud: list[list[float]]
+    cloud_labels: list[int]
+    #: shaped waveforms only
+    eye: NotRequired[EyeRecord]
+
+
+class BerPointRecord(TypedDict):
+    """``ber.ebn0=<x>dB``: one Eb/N0 point of the BER check."""
+
+    ebn0_db: float
+    theory_ber: float
+    limit_ber: float
+    margin_db: float
+    bits: int
+    errors: int
+    decided_after_bits: int
+    decided_after_errors: int
+    #: ``sprt`` or ``interval``
+    method: str
+    risk: float
+    loss_db: float
+    loss_interval_db: list[float]
+    #: over-dispersion of the per-sub-block error counts, None without an estimate
+    dispersion: float | None
+    sub_block_bits: int
+    #: ``nominal`` or ``measured``
+    energy: str
+    sides: str
+    impairments: str
+
+
+class MaskRecord(TypedDict):
+    worst_margin_db: float
+    worst_freq_rs: float
+    violations: list[list[float]]
+
+
+class SpectrumRecord(TypedDict):
+    """``spectrum.obw``: the Welch PSD and the bandwidths measured on it."""
+
+    #: frequency in symbol rates and the PSD (linear), thinned to at most about 2048 points
+    f_rs: list[float]
+    psd: list[float]
+    obw_rs: float
+    obw_edges_rs: list[float]
+    expected_obw_rs: float
+    x_db: float
+    x_db_width_rs: float
+    x_db_edges_rs: list[float]
+    #: the device file's mask, [[offset_rs, dBc], ...], or None
+    mask: list | None
+    #: the declared scheme, as text
+    pulse: str
+    #: with a mask only
+    mask_result: NotRequired[MaskRecord]
