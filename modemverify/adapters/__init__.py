@@ -18,7 +18,7 @@ _EXPORTS = {
     "summarise_samples": "base",
     "GuardedDevice": "base",
     "ENTRY_POINT_GROUP": "registry",
-    "BUILTIN": "registry",
+    "builtin_adapters": "registry",
     "available_adapters": "registry",
     "get_adapter_class": "registry",
 }

@@ -44,7 +44,7 @@ from . import _wire
 from .base import ModemAdapter, summarise_bits, summarise_samples
 from .isolated import OPEN_TIMEOUT_S, STDERR_QUOTE, HangGuard, describe_exit
 
-__all__ = ["PYTHON_PLACEHOLDER", "STDERR_KEEP", "CHUNK", "ProcessAdapter"]
+__all__ = ["ADAPTER", "PYTHON_PLACEHOLDER", "STDERR_KEEP", "CHUNK", "ProcessAdapter"]
 
 PYTHON_PLACEHOLDER = "{python}"
 #: how much of the process's stderr is kept (the tail)
@@ -492,3 +492,7 @@ class ProcessAdapter(ModemAdapter):
             child.wait(2)
         child.kill()
         child.close_pipes()
+
+
+#: the adapter this module adds (found by adapters.registry)
+ADAPTER = ProcessAdapter

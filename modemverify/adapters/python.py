@@ -27,7 +27,7 @@ from ..dsp.formats import (
 from ..errors import AdapterError, ConfigError, DeviceOutputError
 from .base import CAPABILITIES, ModemAdapter
 
-__all__ = ["load_target", "validate_format_keys", "decode_output", "PythonAdapter"]
+__all__ = ["ADAPTER", "load_target", "validate_format_keys", "decode_output", "PythonAdapter"]
 
 
 def load_target(target: str, base_dir: Path, *, file: str | None = None):
@@ -170,3 +170,7 @@ class PythonAdapter(ModemAdapter):
         close = getattr(self.device, "close", None)
         if callable(close):
             close()
+
+
+#: the adapter this module adds (found by adapters.registry)
+ADAPTER = PythonAdapter

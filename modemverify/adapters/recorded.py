@@ -37,7 +37,7 @@ from ..schemes.labels import bits_to_labels
 from ..vectors.recording import read_vector_set
 from .base import ModemAdapter, summarise_bits, summarise_samples
 
-__all__ = ["SIGMF_SUFFIXES", "SIGMF_BITS_KEY", "SIGMF_DATATYPES", "RecordedAdapter"]
+__all__ = ["ADAPTER", "SIGMF_SUFFIXES", "SIGMF_BITS_KEY", "SIGMF_DATATYPES", "RecordedAdapter"]
 
 SIGMF_SUFFIXES = (".sigmf-meta", ".sigmf-data", ".sigmf")
 SIGMF_BITS_KEY = "modemverify:bits"
@@ -262,3 +262,7 @@ class RecordedAdapter(ModemAdapter):
         raise AdapterError(f"no recording for these samples: a recorded device answers only "
                            f"sample sequences in its recording ({self._describe()}) or a "
                            f"contiguous part of one", call="demodulate", input_summary=summary)
+
+
+#: the adapter this module adds (found by adapters.registry)
+ADAPTER = RecordedAdapter

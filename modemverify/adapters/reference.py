@@ -12,7 +12,7 @@ from ..schemes.conventions import get_convention
 from ..schemes.reference import ReferenceModem
 from .base import ModemAdapter
 
-__all__ = ["ReferenceAdapter"]
+__all__ = ["ADAPTER", "ReferenceAdapter"]
 
 
 class ReferenceAdapter(ModemAdapter):
@@ -45,3 +45,7 @@ class ReferenceAdapter(ModemAdapter):
 
     def demodulate_soft(self, samples, noise_var):
         return self.modem.demodulate_soft(samples, noise_var)
+
+
+#: the adapter this module adds (found by adapters.registry)
+ADAPTER = ReferenceAdapter

@@ -1,5 +1,9 @@
 """Adapter lookup: the built-in adapters and those plugins register.
 
+A built-in adapter is a module of this package that names its class ``ADAPTER`` (as an oracle
+module names its ``ORACLE``); adding one is adding that module. They are imported on the first
+lookup.
+
 A plugin adds an adapter through the entry-point group ``modemverify.adapters``::
 
     [project.entry-points."modemverify.adapters"]
@@ -12,23 +16,30 @@ from __future__ import annotations
 
 import importlib
 import os
+import pkgutil
+from functools import cache
 from importlib.metadata import entry_points
 
 from ..errors import ConfigError, UnknownNameError
 from .base import ModemAdapter
 
-__all__ = ["ENTRY_POINT_GROUP", "BUILTIN", "available_adapters", "get_adapter_class"]
+__all__ = ["ENTRY_POINT_GROUP", "builtin_adapters", "available_adapters", "get_adapter_class"]
 
 ENTRY_POINT_GROUP = "modemverify.adapters"
 
-#: built-in adapters, "module:Class", imported lazily
-BUILTIN: dict[str, str] = {
-    "python": "modemverify.adapters.python:PythonAdapter",
-    "reference": "modemverify.adapters.reference:ReferenceAdapter",
-    "sharedlib": "modemverify.adapters.sharedlib:SharedLibAdapter",
-    "process": "modemverify.adapters.process:ProcessAdapter",
-    "recorded": "modemverify.adapters.recorded:RecordedAdapter",
-}
+
+@cache
+def builtin_adapters() -> dict[str, type[ModemAdapter]]:
+    """{adapter_id: class} of the modules of this package that define ``ADAPTER``."""
+    package = __name__.rpartition(".")[0]
+    found: dict[str, type[ModemAdapter]] = {}
+    for info in pkgutil.iter_modules(importlib.import_module(package).__path__):
+        if info.name.startswith("_"):
+            continue
+        cls = getattr(importlib.import_module(f"{package}.{info.name}"), "ADAPTER", None)
+        if cls is not None:
+            found[cls.adapter_id] = cls
+    return found
 
 
 def _plugins() -> dict[str, object]:
@@ -38,7 +49,7 @@ def _plugins() -> dict[str, object]:
 
 
 def available_adapters() -> list[str]:
-    return sorted(set(BUILTIN) | set(_plugins()))
+    return sorted(set(builtin_adapters()) | set(_plugins()))
 
 
 def get_adapter_class(name: str):
@@ -49,9 +60,9 @@ def get_adapter_class(name: str):
     UnknownNameError
         Naming the installed adapters.
     """
-    if name in BUILTIN:
-        module, _, attr = BUILTIN[name].partition(":")
-        return getattr(importlib.import_module(module), attr)
+    builtin = builtin_adapters()
+    if name in builtin:
+        return builtin[name]
     plugins = _plugins()
     if name not in plugins:
         raise UnknownNameError("adapter", name, available_adapters())

@@ -46,7 +46,7 @@ from ..errors import AdapterError, ConfigError, DeviceOutputError
 from ..options import Opt
 from .base import ModemAdapter, summarise_bits, summarise_samples
 
-__all__ = ["SYMBOL_KEYS", "GUARD", "SharedLibAdapter"]
+__all__ = ["ADAPTER", "SYMBOL_KEYS", "GUARD", "SharedLibAdapter"]
 
 SYMBOL_KEYS = ("modulate", "demodulate", "demodulate_soft")
 _C_IDENTIFIER = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
@@ -206,3 +206,7 @@ class SharedLibAdapter(ModemAdapter):
         n = self._check("demodulate_soft", ret, capacity, out, capacity, "LLRs",
                         lambda: summarise_samples(samples) + f", noise_var={noise_var:.4g}")
         return out[:n].astype(np.float64)
+
+
+#: the adapter this module adds (found by adapters.registry)
+ADAPTER = SharedLibAdapter

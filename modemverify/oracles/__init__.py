@@ -1,34 +1,30 @@
 """The oracles: one module per property, each returning Verdicts.
 
-``ORACLES`` lists them in the order they run. A new oracle is a module with an ``ORACLE``
-instance of an :class:`~modemverify.oracles.base.Oracle` subclass, listed in ``_MODULES``.
+``ORACLES`` lists them in the order they run. A new oracle is a module of this package with an
+``ORACLE`` instance of an :class:`~modemverify.oracles.base.Oracle` subclass: adding the module
+is adding the check (its ``order`` says where it runs).
 """
 
 from __future__ import annotations
 
+import importlib
+import pkgutil
+
 from ..errors import ConfigError, UnknownNameError
 from ..options import validate_options
-from . import (
-    alignment,
-    ber,
-    energy,
-    evm,
-    finite,
-    fixed_point,
-    gray,
-    length,
-    llr,
-    mapping,
-    roundtrip,
-    spectrum,
-)
 from .base import Oracle
 
-#: the oracle modules, in the order their checks run
-_MODULES = (finite, length, alignment, energy, mapping, gray, roundtrip, evm, spectrum,
-            fixed_point, ber, llr)
 
-ORACLES: dict[str, Oracle] = {m.ORACLE.name: m.ORACLE for m in _MODULES}
+def _discover() -> dict[str, Oracle]:
+    """Every module of this package that defines ``ORACLE``, in the oracles' ``order``."""
+    found = [getattr(importlib.import_module(f"{__name__}.{info.name}"), "ORACLE", None)
+             for info in pkgutil.iter_modules(__path__) if not info.name.startswith("_")]
+    ranked = sorted((o for o in found if o is not None), key=lambda o: (o.order, o.name))
+    return {o.name: o for o in ranked}
+
+
+#: every check, in the order it runs
+ORACLES: dict[str, Oracle] = _discover()
 
 
 def validate_checks(raw, spec, *, file: str | None) -> dict[str, dict | None]:
@@ -51,5 +47,3 @@ def validate_checks(raw, spec, *, file: str | None) -> dict[str, dict | None]:
             oracle.options, given, file=file, key=f"checks.{name}")
     return out
 
-
-__all__ = ["ORACLES", "Oracle", "validate_checks"]

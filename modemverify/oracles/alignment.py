@@ -23,6 +23,7 @@ __all__ = ["AlignmentOracle", "ORACLE"]
 
 class AlignmentOracle(Oracle):
     name = "alignment"
+    order = 30
     requires = ("modulate",)
     summary = "delay, gain, phase and frequency offset of the waveform against the reference"
     options = {

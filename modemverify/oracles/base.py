@@ -24,6 +24,8 @@ class Oracle:
 
     #: key under ``checks:`` in the device file, and the first part of verdict names
     name: ClassVar[str]
+    #: where the check runs among the others (ascending); leave gaps of 10 for new checks
+    order: ClassVar[int]
     #: one line for ``--help`` and the README
     summary: ClassVar[str]
     #: options the device file may set under ``checks.<name>``

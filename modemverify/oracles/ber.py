@@ -73,6 +73,7 @@ def _increasing(v):
 
 class BerOracle(Oracle):
     name = "ber"
+    order = 110
     fresh_vectors = True
     summary = "BER within margin_db of theory, decided sequentially with stated confidence"
     options = {

@@ -19,6 +19,7 @@ __all__ = ["EnergyOracle", "ORACLE"]
 
 class EnergyOracle(Oracle):
     name = "energy"
+    order = 40
     requires = ("modulate",)
     summary = ("energy per symbol (sum of |x|^2 over the waveform, per symbol) equals the "
                "convention's normalisation")

@@ -29,6 +29,7 @@ __all__ = ["EvmOracle", "ORACLE"]
 
 class EvmOracle(Oracle):
     name = "evm"
+    order = 80
     requires = ("modulate",)
     fresh_vectors = True
     summary = "RMS and peak EVM of the device's symbols (3GPP definition) against a limit"

@@ -14,6 +14,7 @@ __all__ = ["FiniteOracle", "ORACLE"]
 
 class FiniteOracle(Oracle):
     name = "finite"
+    order = 10
     requires = ("modulate",)
     summary = "no NaN or Inf in the modulator's output for any label"
 

@@ -37,6 +37,7 @@ def _format_of(bench):
 
 class FixedPointOracle(Oracle):
     name = "fixed_point"
+    order = 100
     requires = ("modulate",)
     summary = "integer-sample devices: clipping at the rails and SQNR against the reference"
     fresh_vectors = True

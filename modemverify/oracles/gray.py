@@ -19,6 +19,7 @@ __all__ = ["GrayOracle", "ORACLE"]
 
 class GrayOracle(Oracle):
     name = "gray"
+    order = 60
     summary = "nearest neighbours differ in exactly one bit"
 
     def applies(self, bench):

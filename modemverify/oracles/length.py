@@ -23,6 +23,7 @@ DEFAULT_LENGTHS = [1, 2, 3, 4, 5, 7, 8, 9, 15, 16, 17, 31, 32, 33, 63, 64, 65, 1
 
 class LengthOracle(Oracle):
     name = "length"
+    order = 20
     summary = "output length follows from input length"
     options = {
         "symbols": Opt("list", DEFAULT_LENGTHS, "symbol counts to try",

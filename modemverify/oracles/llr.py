@@ -61,6 +61,7 @@ def best_scale(llr: np.ndarray, bits: np.ndarray) -> tuple[float, float]:
 
 class LlrOracle(Oracle):
     name = "llr"
+    order = 120
     requires = ("demodulate_soft",)
     fresh_vectors = True
     summary = "soft outputs: sign convention, calibration, mutual information vs the reference"

@@ -28,6 +28,7 @@ def _fmt_point(z: complex) -> str:
 
 class MappingOracle(Oracle):
     name = "mapping"
+    order = 50
     summary = "label-to-point table equals the claimed convention (up to a positive gain)"
     options = {
         "tolerance": Opt("number", DEFAULT_TOLERANCE,

@@ -35,6 +35,7 @@ def _bits_text(bits: np.ndarray, k: int) -> str:
 
 class RoundtripOracle(Oracle):
     name = "roundtrip"
+    order = 70
     fresh_vectors = True
     summary = "noiseless demodulate(modulate(bits)) returns the bits"
     options = {

@@ -48,6 +48,7 @@ def _aclr(v):
 
 class SpectrumOracle(Oracle):
     name = "spectrum"
+    order = 90
     requires = ("modulate",)
     summary = "99 % occupied bandwidth against the declared pulse; optional x-dB width, mask, ACLR"
     fresh_vectors = True

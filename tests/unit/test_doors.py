@@ -77,3 +77,16 @@ def test_the_root_door_resolves_every_name_and_stays_cheap():
     # plugin and check authors import these from the package, not from private modules
     assert modemverify.ModemAdapter.__module__ == "modemverify"
     assert {"ModemAdapter", "Oracle", "Opt", "Bench", "Verdict"} <= set(modemverify.__all__)
+
+
+def test_checks_and_adapters_are_found_by_their_modules():
+    # adding a check is adding a module that defines ORACLE (its order says where it runs);
+    # adding a built-in adapter is adding a module that defines ADAPTER
+    from modemverify.adapters.registry import builtin_adapters
+    from modemverify.oracles import ORACLES
+
+    orders = [o.order for o in ORACLES.values()]
+    assert orders == sorted(orders) and len(set(orders)) == len(orders)
+    assert list(ORACLES)[:2] == ["finite", "length"] and list(ORACLES)[-2:] == ["ber", "llr"]
+    assert set(builtin_adapters()) == {"python", "reference", "sharedlib", "process", "recorded"}
+    assert all(cls.adapter_id == name for name, cls in builtin_adapters().items())
