@@ -124,21 +124,11 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
+    commands = {"check": cmd_check, "identify": cmd_identify, "compare": cmd_compare,
+                "checks": cmd_checks, "theory": cmd_theory, "vectors": cmd_vectors_export,
+                "demo": lambda args: run_demo(Path(args.out), seed=args.seed)}
     try:
-        if args.command == "check":
-            return cmd_check(args)
-        if args.command == "identify":
-            return cmd_identify(args)
-        if args.command == "compare":
-            return cmd_compare(args)
-        if args.command == "checks":
-            return cmd_checks(args)
-        if args.command == "theory":
-            return cmd_theory(args)
-        if args.command == "vectors":
-            return cmd_vectors_export(args)
-        if args.command == "demo":
-            return run_demo(Path(args.out), seed=args.seed)
+        return commands[args.command](args)
     except ConfigError as exc:
         print(f"modemverify: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
@@ -148,7 +138,6 @@ def main(argv: list[str] | None = None) -> int:
     except BrokenPipeError:  # output piped into head, say: not an error of ours
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return EXIT_OK
-    return EXIT_USAGE
 
 
 def cmd_check(args) -> int:
