@@ -1,8 +1,8 @@
 """Channel stages: AWGN calibration, impairments, composition and device-file configuration.
 
-Conventions (the vetted reference values, notation): complex AWGN has variance N0 (N0/2 per real
-dimension); Eb = Es / k. Statistical checks use exact distributions from scipy.stats at a stated
-confidence with fixed seeds, so they are deterministic.
+Conventions (common practice): complex AWGN has variance N0 (N0/2 per real dimension);
+Eb = Es / k. Statistical checks use exact distributions from scipy.stats at a stated confidence
+with fixed seeds, so they are deterministic.
 """
 
 from __future__ import annotations
@@ -109,15 +109,11 @@ def test_measured_energy_scales_with_the_input():
 
 
 def theory_bpsk(ebn0_db: float) -> float:
-    # Pb = Q(sqrt(2 Eb/N0)): Proakis & Salehi, Digital Communications, 5th ed., ch. 4 (section
-    # from memory); the vetted reference values 3.
+    # Pb = Q(sqrt(2 Eb/N0)) with Q = scipy.stats.norm.sf: J. G. Proakis and M. Salehi, Digital
+    # Communications, 5th ed., ch. 4 (section from memory). The published values of this curve
+    # are checked against modemverify.schemes.theory in test_theory.py
+    # (test_bpsk_values_published); here it is the independent yardstick for the channel.
     return stats.norm.sf(math.sqrt(2 * 10 ** (ebn0_db / 10)))
-
-
-@pytest.mark.parametrize("ebn0_db, table_value", [(4.0, 1.250e-2), (6.0, 2.388e-3)])
-def test_theory_matches_reference_table(ebn0_db, table_value):
-    # the vetted reference values 3, "BPSK Pb at given Eb/N0" (4 significant digits).
-    assert theory_bpsk(ebn0_db) == pytest.approx(table_value, rel=5e-4)
 
 
 def _ber_in_interval(errors: int, n_bits: int, ebn0_db: float) -> None:
@@ -137,7 +133,8 @@ def test_bpsk_monte_carlo_matches_theory(ebn0_db):
 
 @pytest.mark.parametrize("ebn0_db", [4.0, 6.0])
 def test_gray_qpsk_oversampled_integrate_and_dump_matches_theory(ebn0_db):
-    # Gray QPSK has the BPSK bit error rate (the vetted reference values 3). With sps = 8 and a
+    # Gray QPSK has the BPSK bit error rate, each of I and Q being a BPSK channel (Proakis &
+    # Salehi, Digital Communications, 5th ed., ch. 4; section from memory). With sps = 8 and a
     # unit-energy rectangular pulse, integrate-and-dump must see Es/N0: this checks the
     # per-sample calibration (a noise level off by a factor sps would move the BER by decades).
     sps, n_sym = 8, 100_000

@@ -9,10 +9,10 @@ third party would. Expected points: 3GPP TS 38.211 5.1.3 QPSK and 5.1.4 16QAM
 from __future__ import annotations
 
 import json
+import os
 import subprocess
 import sys
 import textwrap
-import time
 from pathlib import Path
 
 import numpy as np
@@ -33,9 +33,12 @@ QPSK_3GPP = S * np.array([1 + 1j, 1 - 1j, -1 + 1j, -1 - 1j])  # labels 00, 01, 1
 FAST = {"ber": False, "llr": False}
 
 SCRIPTED = r'''
-import json, struct, sys, time
+import json, os, struct, sys, time
 mode = sys.argv[1]
 rd, wr = sys.stdin.buffer, sys.stdout.buffer
+if mode == "hang":  # one line per start, so a test can tell which processes still live
+    with open(os.path.join(os.path.dirname(os.path.abspath(sys.argv[0])), "pids"), "a") as f:
+        f.write(f"{os.getpid()}\n")
 if mode == "noise":
     wr.write(b"debug: starting up\n"); wr.flush()
 if mode == "exit-at-start":
@@ -169,17 +172,24 @@ def test_python_example_device_answers_with_the_ts_38_211_table():
 
 def test_timeout_kills_the_process_and_quotes_stderr(tmp_path):
     adapter = open_adapter(scripted(tmp_path, "hang", timeout_s=0.5))
+    pids = tmp_path / "pids"
     try:
-        t0 = time.monotonic()
+        (hung,) = map(int, pids.read_text().split())
         with pytest.raises(DeviceTimeout) as info:
             adapter.modulate(np.zeros(200, np.uint8))
-        assert time.monotonic() - t0 < 20  # stopped, not waited out (generous for CI)
         assert "timeout_s=0.5" in str(info.value) and "bits[200]" in str(info.value)
+        assert "device process was killed" in str(info.value)
         assert "waiting for a sync word" in info.value.stderr
+        # stopped, not waited out: the hung process is gone (killed and reaped) at once
+        with pytest.raises(ProcessLookupError):
+            os.kill(hung, 0)
         # the next call starts the process again and is answered
         np.testing.assert_allclose(adapter.modulate(np.array([1, 1], np.uint8)), QPSK_3GPP[[3]],
                                    atol=1e-7)
         assert adapter.starts == 2
+        first, second = map(int, pids.read_text().split())
+        assert first == hung and second != hung
+        os.kill(second, 0)  # the new process is alive
     finally:
         adapter.close()
 

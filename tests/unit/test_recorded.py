@@ -1,11 +1,12 @@
 """Recorded vectors: the golden sets in vectors/, the vector-set format, SigMF, and replay.
 
-Golden values are held against the published tables as the vetted reference values gives them:
-3GPP TS 38.211 5.1.3 QPSK and 5.1.4 16QAM (section 1 tables); IEEE Std 802.11-2007 Table 17-7
-(BPSK: 0 -> -1, 1 -> +1), Table 17-9 (16-QAM axis: 00 -3, 01 -1, 11 +1, 10 +3; K_MOD
-1/sqrt(10)) and Table 17-10 (64-QAM axis: 000 -7, 001 -5, 011 -3, 010 -1, 110 +1, 111 +3,
-101 +5, 100 +7; K_MOD 1/sqrt(42)); PRBS9 of ITU-T O.150 5.1 from the all-ones state starts
-11111111100000111101111100010111 (section 2).
+Golden values are held against the published tables: 3GPP TS 38.211 5.1.3 QPSK and 5.1.4 16QAM
+(5.1.4 clause number from memory; the 16QAM points are those of TS 36.211 Table 7.1.3-1);
+IEEE Std 802.11-2007 17.3.5.7, Table 17-7 (BPSK: 0 -> -1, 1 -> +1), Table 17-9 (16-QAM axis:
+00 -3, 01 -1, 11 +1, 10 +3) and Table 17-10 (64-QAM axis: 000 -7, 001 -5, 011 -3, 010 -1,
+110 +1, 111 +3, 101 +5, 100 +7), with K_MOD 1/sqrt(10) and 1/sqrt(42) from Table 17-6; PRBS9
+is x^9 + x^5 + 1 of ITU-T O.150 (05/96) 5.1, whose first 32 bits from the all-ones register
+(11111111100000111101111100010111) were computed from that register model.
 """
 
 from __future__ import annotations
@@ -39,7 +40,8 @@ VECTORS = ROOT / "vectors"
 TABLE_CHECKS = {"length": False, "roundtrip": False, "ber": False, "llr": False}
 S2, S10, S42 = 1 / np.sqrt(2), 1 / np.sqrt(10), 1 / np.sqrt(42)
 
-# the vetted reference values section 1, 3GPP 16QAM table, labels 0000 ... 1111 (x sqrt(10))
+# 3GPP 16QAM, labels 0000 ... 1111 (x sqrt(10)): TS 38.211 5.1.4 formula (clause number from
+# memory); rows 0000 .. 0011 as printed in TS 36.211 Table 7.1.3-1
 QAM16_3GPP = np.array([1 + 1j, 1 + 3j, 3 + 1j, 3 + 3j, 1 - 1j, 1 - 3j, 3 - 1j, 3 - 3j,
                        -1 + 1j, -1 + 3j, -3 + 1j, -3 + 3j, -1 - 1j, -1 - 3j, -3 - 1j, -3 - 3j])
 
