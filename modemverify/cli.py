@@ -7,6 +7,7 @@ device file says that gates); 2 bad usage or a bad device file.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import json
 import os
 import sys
@@ -22,6 +23,7 @@ from .oracles import ORACLES
 from .report.console import render_run
 from .report.html import write_report
 from .report.junit import write_junit
+from .report.outputs import OutputLock, check_output_file, check_output_folder
 from .runner import DEFAULT_SEED
 from .schemes.conventions import CONVENTIONS, MODULATIONS
 from .schemes.theory import THEORY_MODULATIONS, ber, ebn0_for_ber, ser
@@ -30,7 +32,7 @@ from .vectors.recording import SHIPPED_SETS, export_golden
 
 __all__ = [
     "build_parser", "main", "cmd_check", "cmd_theory", "cmd_compare", "cmd_checks",
-    "cmd_identify", "cmd_vectors_export",
+    "cmd_identify", "cmd_vectors_export", "cmd_demo",
 ]
 
 
@@ -126,7 +128,7 @@ def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
     commands = {"check": cmd_check, "identify": cmd_identify, "compare": cmd_compare,
                 "checks": cmd_checks, "theory": cmd_theory, "vectors": cmd_vectors_export,
-                "demo": lambda args: run_demo(Path(args.out), seed=args.seed)}
+                "demo": cmd_demo}
     try:
         return commands[args.command](args)
     except ConfigError as exc:
@@ -140,14 +142,32 @@ def main(argv: list[str] | None = None) -> int:
         return EXIT_OK
 
 
+def cmd_demo(args) -> int:
+    out = check_output_folder(args.out, "--out")
+    with OutputLock(out / "junit.xml"), OutputLock(out / "report"):
+        return run_demo(out, seed=args.seed)
+
+
 def cmd_check(args) -> int:
     for name in args.only or []:
         if name not in ORACLES:
             raise UnknownNameError("check", name, ORACLES, key="--only")
     specs = [load_device(p) for p in args.devices]  # validate every file before running any
-    _, code = run_and_report(specs, seed=args.seed, only=args.only, junit=args.junit,
-                             report=args.report)
+    with _outputs(args):
+        _, code = run_and_report(specs, seed=args.seed, only=args.only, junit=args.junit,
+                                 report=args.report)
     return code
+
+
+@contextlib.contextmanager
+def _outputs(args):
+    """Check ``--junit`` and ``--report`` before anything runs, and hold them for this run."""
+    with contextlib.ExitStack() as stack:
+        if args.junit:
+            stack.enter_context(OutputLock(check_output_file(args.junit, "--junit")))
+        if args.report:
+            stack.enter_context(OutputLock(check_output_folder(args.report, "--report")))
+        yield
 
 
 def _range(text: str) -> list[float]:
@@ -189,6 +209,11 @@ def cmd_theory(args) -> int:
 
 def cmd_compare(args) -> int:
     a, b = load_device(args.a), load_device(args.b)
+    with _outputs(args):
+        return _compare(args, a, b)
+
+
+def _compare(args, a, b) -> int:
     result = compare(a, b, seed=args.seed, evm_limit_percent=args.evm_limit,
                      sample_error_percent=args.sample_error,
                      spectrum_tolerance_db=args.spectrum_tolerance)

@@ -1,6 +1,6 @@
 """Device files: load, validate, and turn into a :class:`DeviceSpec`.
 
-A device file is data, read with ``yaml.safe_load`` only. Every key is validated before any
+A device file is data, read as plain YAML only (no duplicate keys, no aliases). Every key is validated before any
 vector is drawn; a problem raises :class:`~modemverify.errors.ConfigError` naming the file, the
 dotted key, the value found and what was expected.
 """
@@ -10,9 +10,8 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
-import yaml
-
 from .adapters.registry import get_adapter_class
+from .datafile import read_yaml
 from .dsp.pulses import PULSE_SHAPES, PulseShape
 from .errors import ConfigError, UnknownNameError
 from .options import Opt, validate_options
@@ -91,23 +90,10 @@ ALIGNMENT_OPTIONS: dict[str, Opt] = {
 
 
 def load_device(path: str | Path) -> DeviceSpec:
-    """Read and validate a device file."""
+    """Read and validate a device file (plain YAML data: see :mod:`modemverify.datafile`)."""
     path = Path(path)
-    file = str(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise ConfigError("no such device file", file=file) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise ConfigError(f"cannot read the device file ({exc})", file=file) from None
-    try:
-        data = yaml.safe_load(text)
-    except yaml.YAMLError as exc:
-        mark = getattr(exc, "problem_mark", None)
-        where = f"line {mark.line + 1}, column {mark.column + 1}: " if mark else ""
-        problem = getattr(exc, "problem", None) or str(exc)
-        raise ConfigError(f"not valid YAML: {where}{problem}", file=file) from None
-    return parse_device(data, file=file, base_dir=path.resolve().parent)
+    data = read_yaml(path, what="device file")
+    return parse_device(data, file=str(path), base_dir=path.resolve().parent)
 
 
 def parse_device(data: Any, *, file: str | None = None,

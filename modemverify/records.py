@@ -15,8 +15,9 @@ try:  # Python 3.11
 except ImportError:  # pragma: no cover - Python 3.10
     from typing_extensions import NotRequired
 
-__all__ = ["MappingRecord", "EyeRecord", "EvmRecord", "BerPointRecord", "MaskRecord",
-           "SpectrumRecord"]
+__all__ = [
+    "MappingRecord", "EyeRecord", "EvmRecord", "BerPointRecord", "MaskRecord", "SpectrumRecord",
+]
 
 
 class MappingRecord(TypedDict):

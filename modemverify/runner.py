@@ -22,6 +22,7 @@ from .config import load_device, parse_device
 from .errors import AdapterError
 from .oracles import ORACLES
 from .spec import DeviceSpec, SchemeSpec
+from .text import clean
 from .verdict import OUTCOMES, Verdict, gates
 
 __all__ = [
@@ -42,6 +43,13 @@ class Subject:
     file: str | None = None
     description: str = ""
     fail_on_inconclusive: bool = False
+
+    def __post_init__(self):
+        # a device's name, description or file name reaches terminals, XML and HTML
+        for name in ("name", "adapter", "description"):
+            object.__setattr__(self, name, clean(getattr(self, name)))
+        if self.file is not None:
+            object.__setattr__(self, "file", clean(self.file))
 
     @classmethod
     def of(cls, spec: DeviceSpec) -> "Subject":

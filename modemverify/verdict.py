@@ -10,6 +10,8 @@ import math
 from dataclasses import asdict, dataclass, field, replace
 from typing import Any
 
+from .text import clean
+
 __all__ = ["OUTCOMES", "GATING", "gates", "ranked", "Verdict"]
 
 #: outcomes, in the order a summary lists them
@@ -78,6 +80,11 @@ class Verdict:
     def __post_init__(self):
         if self.outcome not in OUTCOMES:
             raise ValueError(f"outcome={self.outcome!r}: expected one of {OUTCOMES}")
+        # text from a device reaches terminals, XML and HTML: cleaned once, here
+        for name in ("name", "reason", "unit"):
+            object.__setattr__(self, name, clean(getattr(self, name)))
+        if self.counterexample is not None:
+            object.__setattr__(self, "counterexample", clean(self.counterexample))
 
     @property
     def passed(self) -> bool:

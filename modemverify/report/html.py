@@ -9,7 +9,7 @@ from pathlib import Path
 
 from .._version import __version__
 from ..verdict import ranked
-from .junit import write_atomic
+from .outputs import write_atomic
 from .plots import PLOTTERS
 
 __all__ = ["CSS", "write_report"]

@@ -6,15 +6,14 @@ half-written file where CI expects a complete one.
 
 from __future__ import annotations
 
-import os
-import tempfile
 from pathlib import Path
 
 from junit_xml import TestCase, TestSuite, to_xml_report_string
 
 from .._version import __version__
+from .outputs import write_atomic
 
-__all__ = ["suite_for", "junit_xml", "write_atomic", "write_junit"]
+__all__ = ["suite_for", "junit_xml", "write_junit"]
 
 
 def suite_for(result) -> TestSuite:
@@ -46,22 +45,6 @@ def suite_for(result) -> TestSuite:
 
 def junit_xml(results) -> str:
     return to_xml_report_string([suite_for(r) for r in results], encoding="utf-8")
-
-
-def write_atomic(path: str | Path, text: str) -> None:
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
-    umask = os.umask(0)
-    os.umask(umask)
-    os.chmod(tmp, 0o666 & ~umask)  # mkstemp makes 0600; a report is for everyone to read
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as f:
-            f.write(text)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
 
 
 def write_junit(results, path: str | Path) -> None:
