@@ -77,9 +77,10 @@ def build_parser() -> argparse.ArgumentParser:
                         "the same bits")
     cp.add_argument("a", metavar="A.yaml", help="the reference implementation")
     cp.add_argument("b", metavar="B.yaml", help="the implementation judged against A")
-    cp.add_argument("--junit", metavar="FILE")
-    cp.add_argument("--report", metavar="DIR")
-    cp.add_argument("--seed", type=_seed, default=DEFAULT_SEED)
+    cp.add_argument("--junit", metavar="FILE", help="write JUnit XML here")
+    cp.add_argument("--report", metavar="DIR", help="write the HTML report (index.html) here")
+    cp.add_argument("--seed", type=_seed, default=DEFAULT_SEED,
+                    help=f"seed of every random draw (default {DEFAULT_SEED})")
     cp.add_argument("--evm-limit", type=float, metavar="PERCENT",
                     help="EVM of B against A (default: TS 38.104 Table 6.5.2.2-1 for the "
                          "modulation)")
@@ -89,7 +90,7 @@ def build_parser() -> argparse.ArgumentParser:
                     help="largest PSD difference in band (default 1 dB)")
 
     t = sub.add_parser("theory", help="print theory BER/SER over AWGN for a modulation")
-    t.add_argument("modulation", help="bpsk, qpsk, dbpsk, 8psk, 16qam, 64qam or 256qam")
+    t.add_argument("modulation", help=", ".join(_THEORY))
     t.add_argument("--ebn0", default="0:12:1", metavar="START:STOP:STEP",
                    help="Eb/N0 range in dB, inclusive (default 0:12:1)")
     t.add_argument("--margin", type=float, default=None, metavar="DB",
@@ -114,13 +115,14 @@ def build_parser() -> argparse.ArgumentParser:
                    help="of the raw sample file (default float32; int16 is Q15)")
     e.add_argument("--full-scale", type=float, default=1.0, metavar="X",
                    help="int16: the value of the integer 32768 (default 1.0)")
-    e.add_argument("--out", metavar="DIR", default="vectors",
-                   help="folder to write into (default ./vectors)")
+    e.add_argument("--out", metavar="DIR", default="modemverify-vectors",
+                   help="folder to write into (default ./modemverify-vectors)")
 
     d = sub.add_parser("demo", help="run the bundled (invented) demo scenario end to end")
     d.add_argument("--out", metavar="DIR", default="modemverify-demo",
                    help="where the JUnit file and the report go (default ./modemverify-demo)")
-    d.add_argument("--seed", type=_seed, default=DEFAULT_SEED)
+    d.add_argument("--seed", type=_seed, default=DEFAULT_SEED,
+                   help=f"seed of every random draw (default {DEFAULT_SEED})")
     return p
 
 
@@ -183,10 +185,14 @@ def _range(text: str) -> list[float]:
     return [round(parts[0] + i * parts[2], 10) for i in range(n)]
 
 
+#: modulations a device file accepts that have a theory curve (the ones ``theory`` prints)
+_THEORY = tuple(m for m in MODULATIONS if m in THEORY_MODULATIONS)
+
+
 def cmd_theory(args) -> int:
     mod = args.modulation.lower()
-    if mod not in THEORY_MODULATIONS:
-        raise UnknownNameError("modulation with a theory curve", mod, THEORY_MODULATIONS,
+    if mod not in _THEORY:
+        raise UnknownNameError("modulation with a theory curve", mod, _THEORY,
                                key="modulation")
     grid = _range(args.ebn0)
     head = f"{'Eb/N0 dB':>8}  {'BER':>11}  {'SER':>11}"

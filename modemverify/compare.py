@@ -27,6 +27,7 @@ from .dsp.evm import evm, evm_limit
 from .dsp.psd import welch_psd
 from .errors import AdapterError, ConfigError
 from .oracles._table import measure_table
+from .records import CompareEvmRecord, CompareSpectrumRecord
 from .runner import RunResult, Subject, guarded
 from .schemes.transforms import differing_labels, explain_difference
 from .spec import DeviceSpec
@@ -112,13 +113,15 @@ def _waveforms(ba, bb, seed, *, evm_limit_percent, sample_error_percent,
     phase = math.degrees(math.atan2(al.gain.imag, al.gain.real)) if al.gain else 0.0
     gain_db = 20 * math.log10(abs(al.gain)) if al.gain else -math.inf
     text = (f"B is A delayed by {al.delay_samples:+.3f} samples, gain {gain_db:+.2f} dB, "
-            f"phase {phase:+.2f} deg, frequency offset {al.freq_offset:+.2e} cycles/sample; "
+            f"phase {phase:+.2f} deg, frequency offset {al.freq_offset * ba.sps:+.2e} Rs; "
             f"correlation {al.correlation:.5f}")
     out.append(Verdict("compare.alignment", "pass" if al.correlation >= 0.9 else "fail",
                        text if al.correlation >= 0.9 else text + ": B is not A's signal",
                        statistic=al.correlation, limit=0.9, unit="correlation", seed=seed,
                        details={"delay_samples": al.delay_samples, "gain_db": gain_db,
-                                "phase_deg": phase, "freq_offset": al.freq_offset}))
+                                "phase_deg": phase,
+                                "freq_offset_cycles_per_sample": al.freq_offset,
+                                "freq_offset_rs": al.freq_offset * ba.sps}))
     if al.correlation < 0.5 or not al.gain:
         return out
     yb = apply_alignment(wb, al, wa.size)
@@ -141,6 +144,11 @@ def _waveforms(ba, bb, seed, *, evm_limit_percent, sample_error_percent,
     sa = ba.device_symbols(wa, n)
     sb = ba.device_symbols(yb, n)
     e = evm(sb[16:-16], sa[16:-16], equalise=True)
+    cloud = slice(16, 16 + 2000)
+    details: CompareEvmRecord = {
+        "a_symbols": [[float(z.real), float(z.imag)] for z in sa[cloud]],
+        "error": [[float(z.real), float(z.imag)] for z in (sb - sa)[cloud]],
+        "rms_percent": e.rms_percent}
     if evm_lim is None:
         out.append(Verdict("compare.evm", "skipped", f"no EVM limit for {mod}: give "
                            f"--evm-limit", seed=seed))
@@ -148,7 +156,8 @@ def _waveforms(ba, bb, seed, *, evm_limit_percent, sample_error_percent,
         out.append(Verdict("compare.evm", "pass" if e.rms_percent <= evm_lim else "fail",
                            f"EVM of B against A {e.rms_percent:.3f} % ({e.rms_db:.1f} dB), "
                            f"peak {e.peak_percent:.3f} %; limit {evm_lim:g} %",
-                           statistic=e.rms_percent, limit=evm_lim, unit="%", seed=seed))
+                           statistic=e.rms_percent, limit=evm_lim, unit="%", seed=seed,
+                           details=details))
     if ba.sps >= 2:
         fa, pa = welch_psd(wa, ba.sps)
         _, pb = welch_psd(yb, ba.sps)
@@ -158,9 +167,14 @@ def _waveforms(ba, bb, seed, *, evm_limit_percent, sample_error_percent,
         diff = float(np.max(np.abs(pb_db[band] - pa_db[band])))
         where = float(fa[band][np.argmax(np.abs(pb_db[band] - pa_db[band]))])
         ok = diff <= spectrum_tolerance_db
+        keep = slice(None, None, max(1, len(fa) // 2048))
+        spectra: CompareSpectrumRecord = {
+            "f_rs": fa[keep].tolist(), "psd_a_db": pa_db[keep].tolist(),
+            "psd_b_db": pb_db[keep].tolist(), "floor_db": -DEFAULTS["spectrum_floor_db"]}
         out.append(Verdict("compare.spectrum", "pass" if ok else "fail",
                            f"PSDs differ by at most {diff:.2f} dB (at {where:+.3f} Rs) where A "
                            f"is within {DEFAULTS['spectrum_floor_db']:g} dB of its peak "
                            f"(tolerance {spectrum_tolerance_db:g} dB)", statistic=diff,
-                           limit=spectrum_tolerance_db, unit="dB", seed=seed))
+                           limit=spectrum_tolerance_db, unit="dB", seed=seed,
+                           details=spectra))
     return out

@@ -1,12 +1,12 @@
 """Device files: load, validate, and turn into a :class:`DeviceSpec`.
 
-A device file is data, read as plain YAML only (no duplicate keys, no aliases). Every key is validated before any
-vector is drawn; a problem raises :class:`~modemverify.errors.ConfigError` naming the file, the
-dotted key, the value found and what was expected.
-"""
+A device file is data, read as plain YAML only (no duplicate keys, no aliases). Every key is
+validated before any vector is drawn; a problem raises :class:`~modemverify.errors.ConfigError`
+naming the file, the dotted key, the value found and what was expected. """
 
 from __future__ import annotations
 
+import hashlib
 from pathlib import Path
 from typing import Any
 
@@ -93,7 +93,9 @@ def load_device(path: str | Path) -> DeviceSpec:
     """Read and validate a device file (plain YAML data: see :mod:`modemverify.datafile`)."""
     path = Path(path)
     data = read_yaml(path, what="device file")
-    return parse_device(data, file=str(path), base_dir=path.resolve().parent)
+    spec = parse_device(data, file=str(path), base_dir=path.resolve().parent)
+    spec.sha256 = hashlib.sha256(path.read_bytes()).hexdigest()
+    return spec
 
 
 def parse_device(data: Any, *, file: str | None = None,

@@ -25,15 +25,15 @@ class Opt:
     """One option: its kind, default and a one-line description.
 
     ``kind`` is one of ``"number"``, ``"int"``, ``"bool"``, ``"str"``, ``"numbers"`` (a list of
-    numbers or one number), ``"choice"`` (with ``choices``), ``"list"``, ``"mapping"`` or ``"any"`` (checked by its
-    owner, such as an adapter's ``validate_spec``).
-    ``also`` lists literal values accepted as they are beside the kind (``"auto"``, ``None``);
-    ``expected`` replaces the kind's own words in the message for a value of the wrong type;
-    ``required`` makes a missing key an error that quotes ``help``; ``check`` returns a
-    problem (text) or None for a value of the right kind; ``parse(value, file=, key=)``
-    replaces the kind's own conversion with a domain's validator (the sample codec's
-    ``check_full_scale``, say), which returns the value or raises ConfigError. Numbers must be
-    finite: NaN and infinities are refused with the key named.
+    numbers or one number), ``"choice"`` (with ``choices``), ``"list"``, ``"mapping"`` or
+    ``"any"`` (checked by its owner, such as an adapter's ``validate_spec``). ``also`` lists
+    literal values accepted as they are beside the kind (``"auto"``, ``None``); ``expected``
+    replaces the kind's own words in the message for a value of the wrong type; ``required``
+    makes a missing key an error that quotes ``help``; ``check`` returns a problem (text) or
+    None for a value of the right kind; ``parse(value, file=, key=)`` replaces the kind's own
+    conversion with a domain's validator (the sample codec's ``check_full_scale``, say), which
+    returns the value or raises ConfigError. Numbers must be finite: NaN and infinities are
+    refused with the key named.
     """
 
     kind: str

@@ -16,7 +16,8 @@ except ImportError:  # pragma: no cover - Python 3.10
     from typing_extensions import NotRequired
 
 __all__ = [
-    "MappingRecord", "EyeRecord", "EvmRecord", "BerPointRecord", "MaskRecord", "SpectrumRecord",
+    "MappingRecord", "EyeRecord", "EvmRecord", "BerPointRecord", "MaskRecord",
+    "SpectrumRecord", "CompareEvmRecord", "CompareSpectrumRecord",
 ]
 
 
@@ -105,3 +106,21 @@ class SpectrumRecord(TypedDict):
     pulse: str
     #: with a mask only
     mask_result: NotRequired[MaskRecord]
+
+
+class CompareEvmRecord(TypedDict):
+    """``compare.evm``: A's symbols and B's error vectors against them (up to 2000)."""
+
+    a_symbols: list[list[float]]
+    error: list[list[float]]
+    rms_percent: float
+
+
+class CompareSpectrumRecord(TypedDict):
+    """``compare.spectrum``: both Welch PSDs, each in dB from its own peak."""
+
+    f_rs: list[float]
+    psd_a_db: list[float]
+    psd_b_db: list[float]
+    #: the level below A's peak under which the difference is not judged
+    floor_db: float

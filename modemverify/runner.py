@@ -43,6 +43,8 @@ class Subject:
     file: str | None = None
     description: str = ""
     fail_on_inconclusive: bool = False
+    #: sha256 of the device file (None for a spec built in Python, or a comparison)
+    sha256: str | None = None
 
     def __post_init__(self):
         # a device's name, description or file name reaches terminals, XML and HTML
@@ -55,7 +57,7 @@ class Subject:
     def of(cls, spec: DeviceSpec) -> "Subject":
         return cls(name=spec.name, adapter=spec.adapter, scheme=spec.scheme, file=spec.file,
                    description=spec.description,
-                   fail_on_inconclusive=spec.fail_on_inconclusive)
+                   fail_on_inconclusive=spec.fail_on_inconclusive, sha256=spec.sha256)
 
 
 @dataclass

@@ -71,6 +71,8 @@ class DeviceSpec:
     timeout_s: float = DEFAULT_TIMEOUT_S
     description: str = ""
     file: str | None = None
+    #: sha256 of the device file's bytes when it was loaded (None for a spec built in Python)
+    sha256: str | None = None
     base_dir: Path = field(default_factory=Path.cwd)
     extra: dict[str, Any] = field(default_factory=dict)
 

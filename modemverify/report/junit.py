@@ -40,6 +40,10 @@ def suite_for(result) -> TestSuite:
              "samples_per_symbol": str(subject.scheme.samples_per_symbol)}
     if subject.file:
         props["device_file"] = subject.file
+    if subject.sha256:
+        props["device_file_sha256"] = subject.sha256
+    if getattr(result, "interrupted", False):
+        props["interrupted"] = "true: the run stopped before this device's checks finished"
     return TestSuite(subject.name, cases, properties=props)
 
 

@@ -12,10 +12,20 @@ from typing import cast
 
 import numpy as np
 
-from ..records import BerPointRecord, EvmRecord, MappingRecord, SpectrumRecord
+from ..records import (
+    BerPointRecord,
+    CompareEvmRecord,
+    CompareSpectrumRecord,
+    EvmRecord,
+    MappingRecord,
+    SpectrumRecord,
+)
 from ..schemes.theory import ber as theory_ber
 
-__all__ = ["Figure", "constellation_plot", "waterfall_plot", "psd_plot", "eye_plot", "PLOTTERS"]
+__all__ = [
+    "Figure", "constellation_plot", "waterfall_plot", "psd_plot", "eye_plot", "PLOTTERS",
+    "per_label_evm_plot", "compare_plots",
+]
 
 
 @dataclass(frozen=True)
@@ -53,12 +63,18 @@ def constellation_plot(result, folder: Path, stem: str) -> list[Figure]:
     table = record["table"]
     labels = list(table)
     dev = np.array([complex(*table[l]) for l in labels])
+    # drawn at the measured scale: the device's points divided by their RMS gain over the
+    # unit-energy claim, so a table on the integer grid sits on the reference circles
+    finite_pts = dev[np.isfinite(dev)]
+    gain = float(np.sqrt(np.mean(np.abs(finite_pts) ** 2))) if finite_pts.size else 1.0
+    gain = gain if np.isfinite(gain) and gain > 0 else 1.0
+    dev = dev / gain
     k = len(labels[0])
     fig, ax = plt.subplots(figsize=(6.4, 6.4), dpi=100)
     ref = conv.points
     evm_v = next((v for v in result.verdicts if v.name == "evm" and "cloud" in v.details), None)
     if evm_v is not None:
-        cloud = np.array(cast(EvmRecord, evm_v.details)["cloud"])
+        cloud = np.array(cast(EvmRecord, evm_v.details)["cloud"]) / gain
         ax.scatter(cloud[:, 0], cloud[:, 1], s=2, color="tab:orange", alpha=0.35,
                    label="device symbols (EVM probe)", zorder=1)
     ax.scatter(ref.real, ref.imag, s=260, facecolors="none", edgecolors="0.6",
@@ -81,13 +97,15 @@ def constellation_plot(result, folder: Path, stem: str) -> list[Figure]:
     ax.set_aspect("equal")
     ax.set_xlabel("I")
     ax.set_ylabel("Q")
-    ax.set_title(f"{result.subject.name}: {mapping.outcome.upper()} mapping")
+    scale = "" if abs(gain - 1) < 1e-3 else f" (device scaled by 1/{gain:.4g})"
+    ax.set_title(f"{result.subject.name}: {mapping.outcome.upper()} mapping{scale}")
     ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.09), ncol=2, fontsize=8)
     name = _save(plt, fig, folder, f"{stem}-constellation.png")
     return [Figure("Constellation", name,
                    "Device points (blue; red where they differ from the claim) with their labels "
-                   "(bits in the order fed to modulate); grey circles and labels are the claimed "
-                   "convention.")]
+                   "(bits in the order fed to modulate), at the measured scale (divided by the "
+                   f"device's RMS amplitude, {gain:.4g}); grey circles and labels are the claimed "
+                   "convention at unit average energy.")]
 
 
 def waterfall_plot(result, folder: Path, stem: str) -> list[Figure]:
@@ -143,6 +161,12 @@ def psd_plot(result, folder: Path, stem: str) -> list[Figure]:
     db = 10 * np.log10(np.maximum(psd / psd.max(), 1e-15))
     fig, ax = plt.subplots(figsize=(7.5, 4.5), dpi=100)
     ax.plot(f, db, lw=0.9, label="device (Welch)")
+    pulse = result.subject.scheme.pulse
+    if pulse is not None and not pulse.is_rectangular:
+        theory = np.asarray(pulse.psd(f, truncated=True), dtype=float)
+        if theory.max() > 0:
+            ax.plot(f, 10 * np.log10(np.maximum(theory / theory.max(), 1e-15)), lw=0.9,
+                    color="0.3", alpha=0.8, label=f"declared {pulse.describe()} (theory)")
     for edge in d["obw_edges_rs"]:
         ax.axvline(edge, color="tab:green", ls="--", lw=0.9)
     half = d["expected_obw_rs"] / 2
@@ -162,9 +186,10 @@ def psd_plot(result, folder: Path, stem: str) -> list[Figure]:
     ax.set_title(f"{result.subject.name}: spectrum ({v.outcome.upper()} occupied bandwidth)")
     ax.legend(fontsize=8, loc="lower center")
     name = _save(plt, fig, folder, f"{stem}-psd.png")
-    return [Figure("Spectrum", name, "Welch PSD of the device's output with the measured 99 % "
-                   "occupied-bandwidth edges (dashed), the declared pulse's (dotted) and the "
-                   "mask, if one was given.")]
+    return [Figure("Spectrum", name, "Welch PSD of the device's output over the declared "
+                   "pulse's theoretical PSD (grey, with the filter's truncation), with the "
+                   "measured 99 % occupied-bandwidth edges (dashed), the declared pulse's "
+                   "(dotted) and the mask, if one was given.")]
 
 
 def eye_plot(result, folder: Path, stem: str) -> list[Figure]:
@@ -189,4 +214,88 @@ def eye_plot(result, folder: Path, stem: str) -> list[Figure]:
                    "filter, two symbols around each sampling instant.")]
 
 
-PLOTTERS = [constellation_plot, waterfall_plot, psd_plot, eye_plot]
+def per_label_evm_plot(result, folder: Path, stem: str) -> list[Figure]:
+    """RMS EVM per label, against the limit: which labels carry the error."""
+    v = next((v for v in result.verdicts if v.name == "evm" and "per_label" in v.details), None)
+    if v is None or not v.details["per_label"]:
+        return []
+    d = cast(EvmRecord, v.details)
+    labels = sorted(d["per_label"])
+    rms = np.array([d["per_label"][l][1] for l in labels])
+    plt = _pyplot()
+    fig, ax = plt.subplots(figsize=(max(6.0, 0.12 * len(labels) + 2), 3.6), dpi=100)
+    ax.bar(range(len(labels)), rms, color=["tab:red" if x > d["limit_percent"] else "tab:blue"
+                                           for x in rms])
+    ax.axhline(d["limit_percent"], color="tab:red", ls="--", lw=1,
+               label=f"limit {d['limit_percent']:g} %")
+    ax.axhline(d["rms_percent"], color="0.3", ls=":", lw=1,
+               label=f"all labels {d['rms_percent']:.3g} %")
+    if len(labels) <= 64:
+        ax.set_xticks(range(len(labels)), labels, rotation=90, fontsize=6)
+    ax.set_xlabel("label (bits in the order fed to modulate)")
+    ax.set_ylabel("RMS EVM (%)")
+    ax.set_title(f"{result.subject.name}: EVM per label ({v.outcome.upper()})")
+    ax.legend(fontsize=8)
+    name = _save(plt, fig, folder, f"{stem}-evm-labels.png")
+    return [Figure("EVM per label", name, "RMS error vector of each label's symbols in % of the "
+                   "reference RMS (3GPP definition), against the limit (dashed); a label far "
+                   "above the others points at a mapping or saturation defect, a uniform level "
+                   "at noise or filtering.")]
+
+
+def compare_plots(result, folder: Path, stem: str) -> list[Figure]:
+    """compare: A and B's spectra overlaid, and B's error vectors over A's symbols."""
+    out = []
+    spec = next((v for v in result.verdicts if v.name == "compare.spectrum"
+                 and "psd_a_db" in v.details), None)
+    if spec is not None:
+        d = cast(CompareSpectrumRecord, spec.details)
+        plt = _pyplot()
+        fig, ax = plt.subplots(figsize=(7.5, 4.2), dpi=100)
+        ax.plot(d["f_rs"], d["psd_a_db"], lw=1.2, label="A (reference implementation)")
+        ax.plot(d["f_rs"], d["psd_b_db"], lw=0.9, ls="--", label="B (judged)")
+        ax.axhline(d["floor_db"], color="0.6", lw=0.8, ls=":",
+                   label=f"judged above {d['floor_db']:g} dB")
+        ax.set_ylim(max(min(d["psd_a_db"]), -100), 5)
+        ax.set_xlabel("frequency offset (symbol rates)")
+        ax.set_ylabel("PSD (dB relative to own peak)")
+        ax.grid(True, alpha=0.3)
+        ax.set_title(f"{result.subject.name}: spectra ({spec.outcome.upper()})")
+        ax.legend(fontsize=8, loc="lower center")
+        out.append(Figure("Spectra of A and B", _save(plt, fig, folder, f"{stem}-ab-psd.png"),
+                          "Welch PSDs of both implementations on the same bits, each relative "
+                          "to its own peak; the difference is judged where A is above the "
+                          "dotted level."))
+    ev = next((v for v in result.verdicts if v.name == "compare.evm" and "error" in v.details),
+              None)
+    if ev is not None:
+        d = cast(CompareEvmRecord, ev.details)
+        a = np.array(d["a_symbols"])
+        e = np.array(d["error"])
+        plt = _pyplot()
+        fig, axes = plt.subplots(1, 2, figsize=(9, 4.3), dpi=100)
+        axes[0].scatter(a[:, 0], a[:, 1], s=3, color="0.6", label="A")
+        axes[0].scatter(a[:, 0] + e[:, 0], a[:, 1] + e[:, 1], s=2, color="tab:blue",
+                        alpha=0.5, label="B")
+        axes[0].set_aspect("equal")
+        axes[0].set_title("symbols")
+        axes[0].legend(fontsize=8)
+        axes[1].scatter(e[:, 0], e[:, 1], s=2, color="tab:red", alpha=0.5)
+        axes[1].set_aspect("equal")
+        axes[1].set_title(f"error vectors B - A (RMS {d['rms_percent']:.3g} %)")
+        for ax in axes:
+            ax.grid(True, alpha=0.3)
+            ax.set_xlabel("I")
+            ax.set_ylabel("Q")
+        fig.suptitle(f"{result.subject.name}: {ev.outcome.upper()} EVM of B against A",
+                     fontsize=10)
+        out.append(Figure("Error vectors of B against A",
+                          _save(plt, fig, folder, f"{stem}-ab-error.png"),
+                          "B's symbols over A's on the same bits (after alignment and A's "
+                          "matched filter), and the error vectors themselves: a ring or a tilt "
+                          "shows a gain or phase difference, a cloud noise or quantisation."))
+    return out
+
+
+PLOTTERS = [constellation_plot, per_label_evm_plot, waterfall_plot, psd_plot, eye_plot,
+            compare_plots]

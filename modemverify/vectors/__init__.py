@@ -7,11 +7,10 @@
 - :mod:`~modemverify.vectors.recording`: vector sets on disk (imported from the module itself, so
   that reading vectors does not load the file-format code).
 
-The package re-exports the public names of its submodules but ``recording``, except the PRBS generator
-function :func:`modemverify.vectors.prbs.prbs`: bound here it would hide the submodule of the same
-name, so ``modemverify.vectors.prbs`` always names the submodule. Import the function with
-``from modemverify.vectors.prbs import prbs``.
-"""
+The package re-exports the public names of its submodules but ``recording``, except the PRBS
+generator function :func:`modemverify.vectors.prbs.prbs`: bound here it would hide the submodule of
+the same name, so ``modemverify.vectors.prbs`` always names the submodule. Import the function with
+``from modemverify.vectors.prbs import prbs``. """
 
 from __future__ import annotations
 
