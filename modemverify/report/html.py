@@ -31,7 +31,7 @@ code,pre{font-family:ui-monospace,monospace;font-size:.9em}pre{white-space:pre-w
 .caution{border-left:4px solid #c90;padding:.4em .8em;background:#fffaf0}
 figure{display:inline-block;margin:.5em 1em .5em 0;max-width:46em}
 figure img{max-width:100%}figcaption{font-size:.85em;color:#555}
-.summary td.n{text-align:right;font-variant-numeric:tabular-nums}.summary td.zero{color:#bbb}
+.summary td.ok,.summary td.notok{white-space:nowrap}.summary td.n{text-align:right;font-variant-numeric:tabular-nums}.summary td.zero{color:#bbb}
 .meta td:first-child{color:#555}.interrupted{border-left:4px solid #b00;padding:.4em .8em;
 background:#fdeaea}.num{font-variant-numeric:tabular-nums;white-space:nowrap}
 """
@@ -56,7 +56,8 @@ def _slug(text: str) -> str:
 def _verdict_rows(result) -> str:
     rows = []
     for v in ranked(result.verdicts):
-        judged = v.outcome in ("pass", "fail", "inconclusive")
+        # a number without a unit (a count of nothing, a tolerance in no stated unit) is filler
+        judged = v.outcome in ("pass", "fail", "inconclusive") and bool(v.unit)
         stat = _with_unit(v.statistic, v.unit) if judged and v.statistic is not None else ""
         if stat and v.interval is not None:
             conf = f"{v.confidence:.0%} " if v.confidence else ""
