@@ -21,13 +21,16 @@ from .spec import DEFAULT_TIMEOUT_S, DeviceSpec, SchemeSpec
 
 __all__ = [
     "COMMON_OPTIONS", "SCHEME_OPTIONS", "PULSE_OPTIONS", "ALIGNMENT_OPTIONS", "load_device",
-    "parse_device",
+    "parse_device", "MAX_SAMPLES_PER_SYMBOL",
 ]
 
 
 def _non_empty(text: str) -> str | None:
     return None if text.strip() else "expected non-empty text"
 
+
+#: largest samples per symbol a device file may declare
+MAX_SAMPLES_PER_SYMBOL = 256
 
 #: top-level keys every device file may have (an adapter adds its own: ``config_keys``)
 COMMON_OPTIONS: dict[str, Opt] = {
@@ -52,7 +55,8 @@ COMMON_OPTIONS: dict[str, Opt] = {
                    "hang becomes an error verdict (default: false for python, reference and "
                    "recorded, true for sharedlib; process always runs its own process)"),
     "timeout_s": Opt("number", DEFAULT_TIMEOUT_S, "per-call timeout in seconds for a device "
-                     "out of the harness's process", minimum=0, exclusive_minimum=True),
+                     "out of the harness's process (at most an hour)", minimum=0,
+                     exclusive_minimum=True, maximum=3600),
 }
 
 SCHEME_OPTIONS: dict[str, Opt] = {
@@ -60,7 +64,10 @@ SCHEME_OPTIONS: dict[str, Opt] = {
                       + ", ".join(MODULATIONS), choices=tuple(MODULATIONS), required=True),
     "convention": Opt("choice", None, "the labelling the device claims (required): "
                       + ", ".join(CONVENTIONS), choices=CONVENTIONS, required=True),
-    "samples_per_symbol": Opt("int", 1, "samples per symbol at the device's output", minimum=1),
+    # bounded so that the largest block a check sends (2^17 bits of BPSK) stays a few hundred
+    # MB of complex128 samples: 2^17 symbols x 256 samples x 16 bytes = 512 MiB
+    "samples_per_symbol": Opt("int", 1, "samples per symbol at the device's output (1 to 256)",
+                              minimum=1, maximum=MAX_SAMPLES_PER_SYMBOL),
     "llr_positive_bit": Opt("choice", 0, "the bit a positive LLR stands for", choices=(0, 1)),
     "pulse": Opt("mapping", None, "pulse shape: {shape: rrc|rc|rectangular|gaussian, "
                  "rolloff, span, bt} (default rectangular)"),
@@ -76,7 +83,8 @@ PULSE_OPTIONS: dict[str, Opt] = {
     "shape": Opt("choice", "rectangular", "pulse shape",
                  choices=PULSE_SHAPES),
     "rolloff": Opt("number", None, "roll-off factor (rrc, rc)", minimum=0, maximum=1),
-    "span": Opt("int", None, "filter span in symbols (rrc, rc, gaussian)", minimum=1),
+    "span": Opt("int", None, "filter span in symbols (rrc, rc, gaussian; 1 to 256)", minimum=1,
+                maximum=256),
     "bt": Opt("number", None, "bandwidth-time product (gaussian)", minimum=0,
               exclusive_minimum=True),
 }

@@ -144,4 +144,12 @@ def render_identification(result: IdentifyResult) -> str:
             lines.append(f"Relation: {rel[0]}")
             for other in rel[1:]:
                 lines.append(f"  the same thing as: {other}")
+        others = {name: rels for name, rels in info["others"].items()
+                  if name not in info["matches"]}
+        if others:
+            lines.append("Against the other conventions for this modulation:")
+            for name, rels in others.items():
+                lines.append(f"  {name}: {rels[0]}")
+                for other in rels[1:]:
+                    lines.append(f"    the same thing as: {other}")
     return "\n".join(lines)

@@ -54,6 +54,11 @@ def scheme(**changes):
      "expected a finite number"),
     (scheme(samples_per_symbol=float("nan")), "scheme.samples_per_symbol",
      "expected a whole number"),
+    # sizes are bounded (a value that would exhaust memory is refused at load time)
+    (scheme(samples_per_symbol=1e9), "scheme.samples_per_symbol", "expected a value <= 256"),
+    (scheme(samples_per_symbol=8, pulse={"shape": "rrc", "rolloff": 0.3, "span": 1e8}),
+     "scheme.pulse.span", "expected a value <= 256"),
+    (base(isolate=True, timeout_s=1e9), "timeout_s", "expected a value <= 3600"),
     # adapter keys are declared by the adapter and validated by the same mechanism
     (base(adapter="python", target="m.py:M", sample_format="int12"), "sample_format",
      "expected one of complex128"),
