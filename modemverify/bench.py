@@ -20,6 +20,7 @@ from .schemes.geometry import rotational_symmetry_deg
 from .schemes.reference import ReferenceModem
 from .spec import DeviceSpec
 from .vectors.prbs import prbs
+from .verdict import Verdict
 
 __all__ = [
     "Bench", "ALIGNMENT_PROBE_SYMBOLS", "AppliedAlignment", "measure_alignment", "open_bench",
@@ -37,6 +38,9 @@ class Bench:
     cache: dict = field(default_factory=dict)
     #: ``progress(name, fraction, text)``: set by the command line for long runs; a no-op here
     progress: Callable[[str, float, str], None] = field(default=lambda name, fraction, text: None)
+    #: the verdicts judged on this bench so far, by name (the runner records each one as it
+    #: exists; a check that depends on an earlier verdict reads it here)
+    verdicts: dict[str, Verdict] = field(default_factory=dict)
 
     @property
     def k(self) -> int:

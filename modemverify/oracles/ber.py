@@ -98,6 +98,22 @@ class BerOracle(Oracle):
                         "bounds against the limit)", choices=("sprt", "interval")),
     }
 
+    @staticmethod
+    def points(spec, opts) -> list[float]:
+        """The Eb/N0 points of a device file: ``ebn0_db``, or the defaults for the modulation."""
+        return [float(x) for x in (opts["ebn0_db"] or
+                                   default_ebn0_points(spec.scheme.modulation))]
+
+    def point_name(self, ebn0: float) -> str:
+        return f"{self.name}.ebn0={ebn0:g}dB"
+
+    def verdict_names(self, spec):
+        opts = spec.checks.get(self.name)
+        if opts is None or (not opts["ebn0_db"] and
+                            spec.scheme.modulation not in THEORY_MODULATIONS):
+            return [self.name]  # no theory curve, no default points: one (skipped) verdict
+        return [self.point_name(x) for x in self.points(spec, opts)]
+
     def applies(self, bench: Bench):
         mod = bench.convention.modulation
         if mod not in THEORY_MODULATIONS:
@@ -113,24 +129,21 @@ class BerOracle(Oracle):
         return None
 
     def run(self, bench: Bench, opts, rng, seed):
-        mod = bench.convention.modulation
-        points = opts["ebn0_db"] or default_ebn0_points(mod)
+        points = self.points(bench.spec, opts)
         n_points = len(points)
         risk = 1 - opts["confidence"]
         if opts["familywise"]:
             risk /= n_points
         impair = channel_from_config(opts["impairments"], bits_per_symbol=bench.k,
                                      samples_per_symbol=bench.sps)
-        verdicts = []
         streams = rng.spawn(n_points)
-        for ebn0, stream in zip(points, streams):
-            verdicts.append(self._point(bench, opts, stream, seed, float(ebn0), risk, impair))
-        return verdicts
+        for ebn0, stream in zip(points, streams):  # each point as soon as it is decided
+            yield self._point(bench, opts, stream, seed, ebn0, risk, impair)
 
     def _point(self, bench, opts, rng, seed, ebn0, risk, impair) -> Verdict:
         mod = bench.convention.modulation
         k, sps = bench.k, bench.sps
-        name = f"{self.name}.ebn0={ebn0:g}dB"
+        name = self.point_name(ebn0)
         p0 = float(theory_ber(mod, ebn0))
         p1 = float(theory_ber(mod, ebn0 - opts["margin_db"]))
         max_bits = int(opts["max_bits"])

@@ -15,8 +15,8 @@ def run(bench, name, **opts):
     oracle = ORACLES[name]
     from modemverify.options import validate_options
 
-    return run_oracle(oracle, bench, validate_options(oracle.options, opts, file=None,
-                                                      key=name), seed=7)
+    return list(run_oracle(oracle, bench, validate_options(oracle.options, opts, file=None,
+                                                           key=name), seed=7))
 
 
 def ref_table(mod="16qam", conv="3gpp"):
