@@ -241,6 +241,7 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
             opts = spec.checks.get(name)
             if opts is None or (only and name not in only):
                 continue
+            bench.progress(name, 0.0, "running")
             emit(run_oracle(oracle, bench, opts, seed))
     finally:
         bench.device.close()
