@@ -262,3 +262,49 @@ def test_totals_after_an_interrupt_count_only_what_was_judged_in_full():
     assert render_totals([done, cut]) == ("INTERRUPTED: 1 of 2 devices judged in full (1 OK, "
                                           "0 NOT OK); 1 not judged in full")
     assert render_totals([cut]) == "INTERRUPTED: 1 device given, none judged in full"
+
+
+def test_a_signal_while_the_device_files_load_still_leaves_a_junit(tmp_path):
+    # the handler is installed before anything slow: a signal that arrives while the device
+    # files are read (here: while the target module is imported) is held until loading ends,
+    # then stops the run with every device in the record
+    target = tmp_path / "signals_at_import.py"
+    target.write_text("import os, signal\n"
+                      "os.kill(os.getpid(), signal.SIGTERM)\n"
+                      "class Mapper:\n"
+                      "    def modulate(self, bits):\n"
+                      "        return (1 - 2.0 * bits[0::2]) + 1j * (1 - 2.0 * bits[1::2])\n")
+    first = tmp_path / "first.yaml"
+    first.write_text(f"name: first\nadapter: python\ntarget: {target}:Mapper\n"
+                     f"scheme: {{modulation: qpsk, convention: 3gpp}}\n{CHECKS}\n")
+    second = device_file(tmp_path, "second", "SelfSignal", signals=[])
+    junit = tmp_path / "junit.xml"
+    stream = io.StringIO()
+    results, code = run_and_report([first, second], seed=1, junit=str(junit), stream=stream)
+    assert code == 130
+    suites = junit_cases(junit)
+    assert list(suites) == ["first", "second"]
+    for r in results:
+        assert r.interrupted and {v.outcome for v in r.verdicts} == {"skipped"}
+        assert list(suites[r.subject.name]) == [v.name for v in r.verdicts]
+    assert "INTERRUPTED by SIGTERM" in stream.getvalue()
+
+
+class _Terminal(io.StringIO):
+    def isatty(self):
+        return True
+
+
+def test_the_progress_line_is_for_terminals_and_quiet_in_ci(monkeypatch):
+    from modemverify.report.progress import ProgressLine
+
+    monkeypatch.delenv("CI", raising=False)
+    assert ProgressLine.wanted(_Terminal()) and not ProgressLine.wanted(io.StringIO())
+    monkeypatch.setenv("CI", "true")
+    assert not ProgressLine.wanted(_Terminal())
+    term = _Terminal()
+    bar = ProgressLine(term, width=8)
+    bar("ber.ebn0=4dB", 0.5, "6.6e+04 bits")
+    assert term.getvalue() == "\r  ber.ebn0=4dB           [####....] 6.6e+04 bits\033[K"
+    bar.clear()
+    assert term.getvalue().endswith("\r\033[K")
