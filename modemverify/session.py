@@ -101,21 +101,22 @@ class Interrupts:
         self._deferred += 1
 
     def __enter__(self) -> "Interrupts":
-        # signal handlers belong to the main thread; elsewhere the guard only records nothing
+        # signal handlers belong to the main thread; in another thread the guard is inert
         if threading.current_thread() is threading.main_thread():
             for sig in SIGNALS:
-                self._previous[sig] = signal.signal(sig, self.handle)
+                previous = signal.signal(sig, self.handle)
+                # None: a handler installed from C, which Python cannot put back
+                self._previous[sig] = signal.SIG_DFL if previous is None else previous
             _ACTIVE.append(self)
         return self
 
     def __exit__(self, *exc) -> bool:
         if self in _ACTIVE:
             _ACTIVE.remove(self)
-            for sig, previous in self._previous.items():
-                signal.signal(sig, previous)
+            self._restore()
         return False
 
-    def _forget_in_child(self) -> None:
+    def _restore(self) -> None:
         for sig, previous in self._previous.items():
             signal.signal(sig, previous)
 
@@ -123,7 +124,7 @@ class Interrupts:
 def _reset_in_child() -> None:
     """After ``os.fork`` in the child: the run's handlers belong to the parent."""
     while _ACTIVE:
-        _ACTIVE.pop()._forget_in_child()
+        _ACTIVE.pop()._restore()
 
 
 if hasattr(os, "register_at_fork"):  # POSIX
