@@ -172,18 +172,23 @@ def _finish(results, guard, junit, report, stream, bar) -> None:
     stream.flush()
 
 
-def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=None):
+def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=None,
+                   signal_before=None):
     """Run the devices, print their blocks live, write JUnit and the report; return (results,
     exit code).
 
     ``specs`` are DeviceSpecs or device-file paths (loaded here, under the signal handler, every
     file before any device runs; a bad file raises ConfigError). JUnit is rewritten after every
     device and, after an interrupt, with every device given: what was measured, and the rest as
-    skipped. The exit code is 130 after an interrupt, else 0 when every verdict passed, else 1.
+    skipped. ``signal_before``: a signal number that arrived before this call (an entry point
+    that recorded it while Python started): the run stops at once, with the same record. The
+    exit code is 130 after an interrupt, else 0 when every verdict passed, else 1.
     """
     with Interrupts() as guard:  # before anything slow
         stream = stream or sys.stdout
         with guard.deferred():  # loading is all or nothing: no half-loaded list
+            if signal_before is not None:
+                guard.handle(signal_before)
             specs = [s if isinstance(s, DeviceSpec) else load_device(s) for s in specs]
         bar = ProgressLine() if ProgressLine.wanted() else None
         results: list[RunResult] = []

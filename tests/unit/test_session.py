@@ -290,6 +290,16 @@ def test_a_signal_while_the_device_files_load_still_leaves_a_junit(tmp_path):
     assert "INTERRUPTED by SIGTERM" in stream.getvalue()
 
 
+def test_a_signal_recorded_before_the_run_still_leaves_a_junit(tmp_path):
+    # an entry point that noted a SIGTERM while Python was starting hands it over
+    path = device_file(tmp_path, "dev", "SelfSignal", signals=[])
+    junit = tmp_path / "junit.xml"
+    results, code = run_and_report([path], seed=1, junit=str(junit), stream=io.StringIO(),
+                                   signal_before=signal.SIGTERM)
+    assert code == 130 and results[0].interrupted
+    assert list(junit_cases(junit)["dev"]) == expected_names(load_device(path))
+
+
 class _Terminal(io.StringIO):
     def isatty(self):
         return True
