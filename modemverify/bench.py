@@ -1,8 +1,11 @@
 """The bench: a device under test, its claimed scheme, and the reference it is judged by.
 
 :func:`open_bench` opens a validated spec's device behind the guard; the :class:`Bench` caches
-what several checks share (the measured alignment) and offers the one way from a device
-waveform to symbols (:meth:`Bench.device_symbols`), so every oracle sees waveforms alike.
+what several checks share (the measured alignment, the probe of every label pair and the
+device's scale measured on it) and offers the one way from a device waveform to symbols
+(:meth:`Bench.device_symbols`), so every oracle sees waveforms alike. It also keeps the
+verdicts judged so far in the run (:attr:`Bench.verdicts`), for the checks that depend on
+earlier ones.
 """
 
 from __future__ import annotations
@@ -17,12 +20,16 @@ from .adapters.isolated import open_adapter
 from .dsp.align import Alignment, apply_alignment, estimate_alignment
 from .schemes.conventions import Convention
 from .schemes.geometry import rotational_symmetry_deg
+from .schemes.labels import labels_to_bits
 from .schemes.reference import ReferenceModem
 from .spec import DeviceSpec
+from .vectors.coverage import de_bruijn_labels
 from .vectors.prbs import prbs
+from .verdict import Verdict
 
 __all__ = [
-    "Bench", "ALIGNMENT_PROBE_SYMBOLS", "AppliedAlignment", "measure_alignment", "open_bench",
+    "Bench", "ALIGNMENT_PROBE_SYMBOLS", "AppliedAlignment", "LabelProbe", "DeviceScale",
+    "measure_alignment", "open_bench",
 ]
 
 
@@ -37,6 +44,9 @@ class Bench:
     cache: dict = field(default_factory=dict)
     #: ``progress(name, fraction, text)``: set by the command line for long runs; a no-op here
     progress: Callable[[str, float, str], None] = field(default=lambda name, fraction, text: None)
+    #: the verdicts judged on this bench so far, by name (the runner records each one as it
+    #: exists; a check that depends on an earlier verdict reads it here)
+    verdicts: dict[str, Verdict] = field(default_factory=dict)
 
     @property
     def k(self) -> int:
@@ -63,7 +73,8 @@ class Bench:
         if self.device.has("demodulate"):
             return self.device.demodulate(samples, n_bits=n_symbols * self.k)
         if self.device.has("modulate"):
-            return self.reference.slice_bits(self.device_symbols(samples, n_symbols))
+            return self.reference.slice_bits(
+                self.device_symbols(samples, n_symbols, at_reference_scale=True))
         return self.reference.demodulate(samples, n_symbols)
 
     # -- waveforms --------------------------------------------------------------------------
@@ -85,9 +96,51 @@ class Bench:
         return apply_alignment(samples, applied.correction,
                                self.reference.waveform_length(n_symbols))
 
-    def device_symbols(self, samples: np.ndarray, n_symbols: int) -> np.ndarray:
-        """Symbols from a device waveform: aligned (as allowed), matched-filtered, sampled."""
-        return self.reference.symbols(self.aligned_waveform(samples, n_symbols), n_symbols)
+    def device_symbols(self, samples: np.ndarray, n_symbols: int, *,
+                       at_reference_scale: bool = False) -> np.ndarray:
+        """Symbols from a device waveform: aligned (as allowed), matched-filtered, sampled.
+
+        With ``at_reference_scale`` they are also divided by the gain the alignment left on
+        them (:attr:`DeviceScale.symbol_gain`), so that a device whose only defect is its
+        scale is judged like the reference (the ``energy`` check judges the scale itself).
+        """
+        sym = self.reference.symbols(self.aligned_waveform(samples, n_symbols), n_symbols)
+        if at_reference_scale:
+            g = self.scale().symbol_gain
+            if g != 1.0:
+                sym = sym / g
+        return sym
+
+    def reference_waveform(self, samples: np.ndarray, n_symbols: int) -> np.ndarray:
+        """A device waveform as the reference's receiver must see it: aligned (as allowed) and
+        at the reference's scale. Noise in it is scaled by ``1 / scale().total`` in amplitude."""
+        x = self.aligned_waveform(samples, n_symbols)
+        g = self.scale().symbol_gain
+        return x / g if g != 1.0 else x
+
+    # -- the probe of every label pair, and the device's scale measured on it ----------------
+    def label_probe(self) -> LabelProbe:
+        """The device's answer to every ordered pair of labels (measured once, cached).
+
+        Raises AdapterError if the device misbehaves; needs a modulator.
+        """
+        if "label_probe" not in self.cache:
+            self.cache["label_probe"] = _probe_labels(self)
+        return self.cache["label_probe"]
+
+    def scale(self) -> DeviceScale:
+        """The device's amplitude against the reference's (measured once, cached).
+
+        Measured on :meth:`label_probe` as ``sqrt(Es / Es_ref)``, the energy per symbol of the
+        device's waveform over that of the reference points of the same labels: the quantity
+        the ``energy`` check judges, as an amplitude. The checks after ``energy`` and
+        ``mapping`` work at this scale, so a normalisation defect fails ``energy`` alone. A
+        device with no modulator has the reference's scale. Raises AdapterError if the device
+        misbehaves on the probe.
+        """
+        if "scale" not in self.cache:
+            self.cache["scale"] = _measure_scale(self)
+        return self.cache["scale"]
 
     def sides(self) -> str:
         tx = "device" if self.device.has("modulate") else "reference"
@@ -97,6 +150,81 @@ class Bench:
 
 #: symbols in the probe that measures the alignment
 ALIGNMENT_PROBE_SYMBOLS = 4096
+
+
+@dataclass(frozen=True)
+class LabelProbe:
+    """A de Bruijn sequence of labels (every ordered pair occurs) sent through the modulator.
+
+    ``labels`` are the judged labels; on a shaped waveform they are wrapped by ``pad`` labels
+    each side (a filter span and two), sent as ``sent``, because the first and last symbols see
+    the filter start up and die down (and a device that trims its output cuts them).
+    ``samples`` is the device's raw output for ``sent``; ``symbols`` are
+    :meth:`Bench.device_symbols` of the judged labels (no rescaling).
+    """
+
+    labels: np.ndarray
+    pad: int
+    sent: np.ndarray
+    samples: np.ndarray
+    symbols: np.ndarray
+
+
+@dataclass(frozen=True)
+class DeviceScale:
+    """How loud the device is against the reference, as the bench measured it once.
+
+    ``gain``: ``sqrt(Es / Es_ref)`` on the label probe (1 for a device at the convention's
+    normalisation). ``symbol_gain``: the part of it left on :meth:`Bench.device_symbols` — 1
+    when the alignment already divides a waveform by its measured gain, ``gain`` for symbols
+    judged as they come. ``applied``: the magnitude the alignment divides by (1 without one).
+    ``source`` says where the figures came from.
+    """
+
+    gain: float
+    symbol_gain: float
+    applied: float
+    source: str
+
+    @property
+    def total(self) -> float:
+        """Everything the bench divides a device waveform by before the reference sees it."""
+        return self.applied * self.symbol_gain
+
+    @property
+    def es(self) -> float:
+        """The device's energy per symbol relative to the reference's (``gain ** 2``)."""
+        return self.gain ** 2
+
+    @property
+    def db(self) -> float:
+        return 20 * float(np.log10(self.gain)) if self.gain > 0 else -float("inf")
+
+
+def _probe_labels(bench: Bench) -> LabelProbe:
+    k = bench.k
+    labels = de_bruijn_labels(k, order=2)
+    pad = bench.spec.scheme.pulse.span + 2 if bench.spec.scheme.shaped else 0
+    sent = np.concatenate([labels[labels.size - pad:], labels, labels[:pad]])
+    samples = bench.device.modulate(labels_to_bits(sent, k))
+    symbols = bench.device_symbols(samples, sent.size)[pad:pad + labels.size]
+    return LabelProbe(labels=labels, pad=pad, sent=sent, samples=samples, symbols=symbols)
+
+
+def _measure_scale(bench: Bench) -> DeviceScale:
+    if not bench.device.has("modulate"):
+        return DeviceScale(1.0, 1.0, 1.0, "the device has no modulator: the reference's scale")
+    probe = bench.label_probe()
+    ref = bench.convention.points[probe.sent]
+    ratio = float(np.vdot(probe.samples, probe.samples).real / np.vdot(ref, ref).real)
+    gain = float(np.sqrt(ratio)) if np.isfinite(ratio) and ratio > 0 else 0.0
+    applied = bench.alignment()
+    if applied is not None:
+        return DeviceScale(gain, 1.0, float(abs(applied.correction.gain)),
+                           "the alignment's gain, applied to the waveform")
+    if gain == 0.0:
+        return DeviceScale(gain, 1.0, 1.0, "no energy to measure a scale from")
+    return DeviceScale(gain, gain, 1.0, "the energy per symbol of the label probe")
 
 
 @dataclass(frozen=True)

@@ -3,14 +3,14 @@
 A failing oracle is a result (a :class:`~modemverify.Verdict`), never an exception. Exceptions
 mean one of three things: the user's input is wrong (:class:`ConfigError`), the device under test
 misbehaved (:class:`AdapterError` and its subclasses), or a name was looked up that does not exist
-(:class:`UnknownNameError`).
+(:class:`UnknownNameError`). :class:`Interrupted` is not an error: a signal stopped the run.
 """
 
 from __future__ import annotations
 
 __all__ = [
     "ModemVerifyError", "ConfigError", "UnknownNameError", "AdapterError", "DeviceOutputError",
-    "DeviceTimeout", "DeviceCrashed",
+    "DeviceTimeout", "DeviceCrashed", "Interrupted",
 ]
 
 
@@ -82,3 +82,15 @@ class DeviceTimeout(AdapterError):
 
 class DeviceCrashed(AdapterError):
     """The device's process died (segfault, abort, exit) while handling a call."""
+
+
+class Interrupted(KeyboardInterrupt):
+    """A signal (SIGTERM, Ctrl-C) stopped the run: raised by the run's own signal handler
+    (``session``), never by a device. Code that turns a device's exceptions, ``BaseException``
+    included, into verdicts must let this one through: the run then keeps the verdicts
+    measured so far and writes them. A subclass of KeyboardInterrupt, so code that stops on
+    Ctrl-C stops on it too."""
+
+    def __init__(self, signal_name: str = "SIGINT"):
+        self.signal_name = signal_name
+        super().__init__(signal_name)

@@ -3,6 +3,10 @@
 Every random draw of a run comes from one seed: check ``name`` gets the stream
 ``SeedSequence(seed, spawn_key=(crc32(name),))``, so turning one check off or on does not change
 what the others draw, and ``--seed`` reproduces any verdict exactly.
+
+The names of a run's verdicts depend only on the device file and the version
+(:func:`expected_names`): a check that errors, is skipped or depends on a failed verdict reports
+under every name it declares, and ``on_verdict`` hears each verdict as soon as it exists.
 """
 
 from __future__ import annotations
@@ -10,6 +14,7 @@ from __future__ import annotations
 import time
 import traceback
 import zlib
+from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -26,8 +31,8 @@ from .text import clean
 from .verdict import OUTCOMES, Verdict, gates
 
 __all__ = [
-    "DEFAULT_SEED", "Subject", "RunResult", "check_seed", "guarded", "run_oracle", "check",
-    "check_object",
+    "DEFAULT_SEED", "Subject", "RunResult", "check_seed", "guarded", "run_oracle",
+    "expected_names", "not_judged", "check", "check_object",
 ]
 
 DEFAULT_SEED = 1
@@ -62,7 +67,12 @@ class Subject:
 
 @dataclass
 class RunResult:
-    """Everything one run produced: the subject, its verdicts, the seed and the timings."""
+    """Everything one run produced: the subject, its verdicts, the seed and the timings.
+
+    ``interrupted`` is True when a signal (SIGTERM, Ctrl-C) stopped the run before this subject
+    was fully judged: ``verdicts`` then holds every verdict measured before it, and the names
+    that were not judged as ``skipped`` verdicts saying so; such a result is never ``ok``.
+    """
 
     subject: Subject
     verdicts: list[Verdict]
@@ -71,9 +81,11 @@ class RunResult:
     device_time_s: float = 0.0
     version: str = __version__
     notes: list[str] = field(default_factory=list)
+    interrupted: bool = False
 
     def __repr__(self) -> str:
-        return (f"RunResult({self.subject.name!r}, {'OK' if self.ok else 'NOT OK'}: "
+        status = "INTERRUPTED" if self.interrupted else "OK" if self.ok else "NOT OK"
+        return (f"RunResult({self.subject.name!r}, {status}: "
                 f"{self.tally() or 'no verdicts'}, seed={self.seed})")
 
     def gates(self, verdict: Verdict) -> bool:
@@ -86,7 +98,8 @@ class RunResult:
 
     @property
     def ok(self) -> bool:
-        return not self.gating
+        """No verdict gates the run, and the run was not interrupted."""
+        return not self.gating and not self.interrupted
 
     def counts(self) -> dict[str, int]:
         """{outcome: number of verdicts}, in the order of :data:`~modemverify.verdict.OUTCOMES`,
@@ -103,37 +116,80 @@ def check_seed(seed: int, name: str) -> np.random.SeedSequence:
     return np.random.SeedSequence(seed, spawn_key=(zlib.crc32(name.encode()),))
 
 
-def guarded(name: str, seed: int, judge, *, device_failed: str = "the device failed"
-            ) -> list[Verdict]:
-    """``judge()``'s verdicts, timed; a misbehaving device (AdapterError) or a harness bug
-    becomes one ``error`` verdict named ``name``, so one broken check never costs the others."""
-    t0 = time.perf_counter()
+def guarded(names: str | Iterable[str], seed: int, judge: Callable[[], Iterable[Verdict]], *,
+            device_failed: str = "the device failed") -> Iterator[Verdict]:
+    """``judge()``'s verdicts, each timed and yielded as soon as it exists.
+
+    A misbehaving device (AdapterError) or a harness bug ends the judging: every name of
+    ``names`` not yet reported gets an ``error`` verdict with the reason (a harness bug's says
+    "internal error"), so one broken check never costs the others and a check's names do not
+    change when it breaks. A list of ``names`` is also the check's promise: a name it did not
+    report gets an internal-error verdict (unless the check reported names outside the list,
+    which marks a check that does not declare its names). With a single name, the error
+    verdict carries that name.
+    """
+    names = [names] if isinstance(names, str) else list(names)
+    produced: list[str] = []
+    problem = None
+    t = time.perf_counter()
     try:
-        verdicts = judge()
+        for v in judge():
+            now = time.perf_counter()
+            produced.append(v.name)
+            yield v.with_(duration_s=now - t)
+            t = time.perf_counter()
     except AdapterError as exc:
-        verdicts = [Verdict(name, "error", f"{device_failed}: {exc}", seed=seed,
-                            details={"call": exc.call, "input": exc.input_summary,
-                                     "stderr": exc.stderr})]
+        problem = (f"{device_failed}: {exc}", {"call": exc.call, "input": exc.input_summary,
+                                               "stderr": exc.stderr})
     except Exception as exc:  # a bug in modemverify itself: report it, keep the other verdicts
-        verdicts = [Verdict(name, "error",
-                            f"internal error in the {name} check: "
-                            f"{type(exc).__name__}: {exc}", seed=seed,
-                            details={"traceback": traceback.format_exc(limit=6)})]
-    took = time.perf_counter() - t0
-    return [v.with_(duration_s=took / len(verdicts)) for v in verdicts]
+        problem = (f"internal error in the {names[0].split('.')[0]} check: "
+                   f"{type(exc).__name__}: {exc}",
+                   {"traceback": traceback.format_exc(limit=6)})
+    missing = [n for n in names if n not in produced]
+    if problem is None and (not missing or not set(produced) <= set(names)):
+        return
+    took = time.perf_counter() - t
+    for i, name in enumerate(missing):
+        if problem is None:
+            reason = (f"internal error in the {name.split('.')[0]} check: it gave no verdict "
+                      f"named {name}")
+            yield Verdict(name, "error", reason, seed=seed)
+        else:
+            yield Verdict(name, "error", problem[0], seed=seed, details=dict(problem[1]),
+                          duration_s=took if i == 0 else 0.0)
 
 
-def run_oracle(oracle, bench: Bench, opts: dict, seed: int) -> list[Verdict]:
-    """Run one oracle; a misbehaving device or a harness bug becomes an error verdict."""
+def not_judged(names: Iterable[str], outcome: str, reason: str, seed: int | None
+               ) -> list[Verdict]:
+    """One verdict per name, all with the same outcome and reason (a skip or an error that
+    covers a whole check)."""
+    return [Verdict(n, outcome, reason, seed=seed) for n in names]
+
+
+def run_oracle(oracle, bench: Bench, opts: dict, seed: int) -> Iterator[Verdict]:
+    """Run one oracle, yielding each verdict as soon as it exists and recording it on the
+    bench; a skip (the check does not apply, a device call is missing, a verdict it needs
+    failed) or an error is reported under every name the oracle declares."""
     rng = np.random.default_rng(check_seed(seed, oracle.name))
+    names = oracle.verdict_names(bench.spec)
 
     def judge():
         why_not = oracle.skip_reason(bench)
         if why_not:
-            return [Verdict(oracle.name, "skipped", why_not, seed=seed)]
+            return not_judged(names, "skipped", why_not, seed)
         return oracle.run(bench, opts, rng, seed)
 
-    return guarded(oracle.name, seed, judge)
+    for v in guarded(names, seed, judge):
+        bench.verdicts[v.name] = v
+        yield v
+
+
+def expected_names(spec: DeviceSpec, only: list[str] | None = None) -> list[str]:
+    """The names of every verdict a run of ``spec`` reports, in run order: a function of the
+    device file (and ``only``) alone."""
+    return [n for name, oracle in ORACLES.items()
+            if spec.checks.get(name) is not None and not (only and name not in only)
+            for n in oracle.verdict_names(spec)]
 
 
 def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
@@ -150,7 +206,8 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
     only : list of str, optional
         Run just these checks.
     on_verdict : callable, optional
-        Called with each Verdict as soon as it exists (progress output, incremental JUnit).
+        Called with each Verdict as soon as it exists (live output; the verdicts measured
+        before an interrupt).
     adapter : ModemAdapter, optional
         An adapter already open; by default the spec's adapter opens the device.
     progress : callable, optional
@@ -185,14 +242,16 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
         if progress is not None:
             bench.progress = progress
     except AdapterError as exc:
-        emit([Verdict("device.open", "error", f"the device could not be opened: {exc}",
-                      seed=seed)])
+        # every verdict the device file promises, as an error: the names do not change
+        emit(not_judged(expected_names(spec, only), "error",
+                        f"the device could not be opened: {exc}", seed))
         return RunResult(Subject.of(spec), verdicts, seed, time.perf_counter() - t0)
     try:
         for name, oracle in ORACLES.items():
             opts = spec.checks.get(name)
             if opts is None or (only and name not in only):
                 continue
+            bench.progress(name, 0.0, "running")
             emit(run_oracle(oracle, bench, opts, seed))
     finally:
         bench.device.close()

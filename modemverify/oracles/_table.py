@@ -1,4 +1,5 @@
-"""Measuring a device's label-to-point table (shared by mapping, gray, energy and identify)."""
+"""Measuring a device's label-to-point table (shared by mapping, gray, energy and identify), and
+whether the mapping verdict found another table than the claimed one (which evm and llr need)."""
 
 from __future__ import annotations
 
@@ -42,17 +43,11 @@ def measure_table(bench: Bench) -> MeasuredTable:
 
 
 def _from_modulate(bench: Bench) -> MeasuredTable:
-    k = bench.k
-    m = 1 << k
-    labels = de_bruijn_labels(k, order=2)  # every ordered pair of labels occurs
-    # a shaped waveform's first and last symbols see the filter start up and die down (and a
-    # device that trims its output cuts them): wrap the probe by a filter span each side and
-    # judge only the middle
-    pad = bench.spec.scheme.pulse.span + 2 if bench.spec.scheme.shaped else 0
-    probe = np.concatenate([labels[labels.size - pad:], labels, labels[:pad]])
-    bits = labels_to_bits(probe, k)
-    samples = bench.device.modulate(bits)
-    sym = bench.device_symbols(samples, probe.size)[pad:pad + labels.size]
+    m = 1 << bench.k
+    # the probe of every label pair (Bench.label_probe: wrapped by a filter span each side on a
+    # shaped waveform, only the middle judged)
+    probe = bench.label_probe()
+    labels, sym, samples = probe.labels, probe.symbols, probe.samples
     counts = np.bincount(labels, minlength=m)
     points = (np.bincount(labels, weights=sym.real, minlength=m)
               + 1j * np.bincount(labels, weights=sym.imag, minlength=m)) / counts
@@ -68,7 +63,7 @@ def _from_modulate(bench: Bench) -> MeasuredTable:
     # energy per symbol, as sum(|x|^2) over the waveform relative to the reference symbols of
     # the same probe (so the probe's one extra label does not bias it): exactly |gain|^2 times
     # the convention's unit energy for a device that differs from it by a gain
-    ref_sym = bench.convention.points[probe]
+    ref_sym = bench.convention.points[probe.sent]
     es = float(np.vdot(samples, samples).real / np.vdot(ref_sym, ref_sym).real
                * np.mean(np.abs(bench.convention.points) ** 2))
     return MeasuredTable(points=points, spread=spread / scale, source="modulate",
@@ -96,3 +91,14 @@ def _from_demodulate(bench: Bench) -> MeasuredTable:
             points[first[probe_label]] = ref[probe_label]
     return MeasuredTable(points=points, spread=spread, source="demodulate",
                          probe_symbols=int(labels.size))
+
+
+def claimed_table_failed(bench: Bench, consequence: str) -> str | None:
+    """The reason to skip a check that judges the device against the claimed table, when this
+    run's ``mapping`` verdict found another table (labels at other points, or decisions two
+    labels share); None otherwise — also when mapping failed only because the points depend on
+    their neighbours (the table is the claimed one; EVM and soft outputs measure that spread)."""
+    v = bench.verdicts.get("mapping")
+    if v is None or v.outcome != "fail" or "differing_labels" not in v.details:
+        return None
+    return f"not judged because mapping failed: {consequence}"

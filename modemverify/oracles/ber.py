@@ -18,6 +18,14 @@ effect): pass when its upper end is below the limit, fail when its lower end is 
 Every verdict reports the measured BER, its interval, the bits and errors used, and the
 implementation loss in dB (the theory curve inverted at the BER and at the interval's ends).
 
+No pass better than theory: the theory curve is the exact BER of the optimum coherent detector
+over AWGN, so a point whose whole loss interval lies below ``-BETTER_THAN_THEORY_DB`` does not
+show a good demodulator but a wrong noise reference (the symbol energy is not what the noise
+was set for, another noise-variance convention, an undeclared gain); it fails, saying which.
+Each point is yielded as soon as it is decided, so it is printed, and kept on an interrupt,
+before the next one starts. A point that fails as a consequence of an earlier verdict (the
+labelling is not Gray, the noiseless round trip fails, the energy is off) says so.
+
 References
 ----------
 A. Wald, *Sequential Analysis*, Wiley, 1947 (Wald's thresholds A = (1-beta)/alpha,
@@ -47,7 +55,10 @@ from ..vectors.channels import Awgn, channel_from_config
 from ..verdict import Verdict
 from .base import Oracle
 
-__all__ = ["MIN_SUB_BLOCK", "FIRST_BLOCK", "MIN_BURST_BLOCKS", "BerOracle", "ORACLE"]
+__all__ = [
+    "MIN_SUB_BLOCK", "FIRST_BLOCK", "MIN_BURST_BLOCKS", "BETTER_THAN_THEORY_DB", "BerOracle",
+    "ORACLE",
+]
 
 #: shortest sub-block (bits) of the error counts the over-dispersion test uses
 MIN_SUB_BLOCK = 8192
@@ -56,6 +67,24 @@ MIN_SUB_BLOCK = 8192
 FIRST_BLOCK = 1 << 17
 #: fewest sub-blocks for which the over-dispersion test may set the SPRT's decision aside
 MIN_BURST_BLOCKS = 10
+#: a point whose whole implementation-loss interval lies below minus this many dB fails: the
+#: device is better than theory, so the noise reference is wrong. Chosen from the theory and
+#: the interval. (1) The curves are the exact BER of nearest-point decisions with Gray
+#: labelling; the bitwise-MAP detector, the best any demodulator can do, is no better at the
+#: default points: 16QAM at 7.9 and 10.5 dB and 64QAM at 12.0 dB give the same BER to below
+#: 1e-9 relative (4-PAM / 8-PAM per axis, numerical integration of the Gaussian likelihoods
+#: with numpy, 4e5 points over +-12 sigma). So no detector beats the curve by any margin; the
+#: bound only covers chance. (2) The loss interval is the BER interval at the point's
+#: confidence (1 - 2 x risk); a correct device's interval lies wholly below -0.25 dB only if
+#: its error count is far below theory. On the smallest sample a point uses (the first block,
+#: 2^17 bits) at the familywise risk 0.05 / 3, that has probability at most 2.1e-4 per point
+#: at the default points of QPSK, 16QAM and 64QAM and at QPSK 4, 6 and 8 dB (binomial
+#: probability of the counts whose Clopper-Pearson upper end is below theory at Eb/N0 +
+#: 0.25 dB, scipy.stats.binom) — negligible beside the check's stated 0.05 risk. (3) The
+#: mistakes it is there to catch are much larger: a missing QAM normalisation is 10 log10 of
+#: 2, 10, 42 or 170 (3 to 22 dB), N0 taken per dimension instead of per complex sample 3 dB,
+#: Es taken for Eb 10 log10 k dB.
+BETTER_THAN_THEORY_DB = 0.25
 
 
 def _impairments(v):
@@ -98,6 +127,22 @@ class BerOracle(Oracle):
                         "bounds against the limit)", choices=("sprt", "interval")),
     }
 
+    @staticmethod
+    def points(spec, opts) -> list[float]:
+        """The Eb/N0 points of a device file: ``ebn0_db``, or the defaults for the modulation."""
+        return [float(x) for x in (opts["ebn0_db"] or
+                                   default_ebn0_points(spec.scheme.modulation))]
+
+    def point_name(self, ebn0: float) -> str:
+        return f"{self.name}.ebn0={ebn0:g}dB"
+
+    def verdict_names(self, spec):
+        opts = spec.checks.get(self.name)
+        if opts is None or (not opts["ebn0_db"] and
+                            spec.scheme.modulation not in THEORY_MODULATIONS):
+            return [self.name]  # no theory curve, no default points: one (skipped) verdict
+        return [self.point_name(x) for x in self.points(spec, opts)]
+
     def applies(self, bench: Bench):
         mod = bench.convention.modulation
         if mod not in THEORY_MODULATIONS:
@@ -113,24 +158,21 @@ class BerOracle(Oracle):
         return None
 
     def run(self, bench: Bench, opts, rng, seed):
-        mod = bench.convention.modulation
-        points = opts["ebn0_db"] or default_ebn0_points(mod)
+        points = self.points(bench.spec, opts)
         n_points = len(points)
         risk = 1 - opts["confidence"]
         if opts["familywise"]:
             risk /= n_points
         impair = channel_from_config(opts["impairments"], bits_per_symbol=bench.k,
                                      samples_per_symbol=bench.sps)
-        verdicts = []
         streams = rng.spawn(n_points)
-        for ebn0, stream in zip(points, streams):
-            verdicts.append(self._point(bench, opts, stream, seed, float(ebn0), risk, impair))
-        return verdicts
+        for ebn0, stream in zip(points, streams):  # each point as soon as it is decided
+            yield self._point(bench, opts, stream, seed, ebn0, risk, impair)
 
     def _point(self, bench, opts, rng, seed, ebn0, risk, impair) -> Verdict:
         mod = bench.convention.modulation
         k, sps = bench.k, bench.sps
-        name = f"{self.name}.ebn0={ebn0:g}dB"
+        name = self.point_name(ebn0)
         p0 = float(theory_ber(mod, ebn0))
         p1 = float(theory_ber(mod, ebn0 - opts["margin_db"]))
         max_bits = int(opts["max_bits"])
@@ -217,15 +259,58 @@ class BerOracle(Oracle):
                 f"{loss.describe()}")
         extra = (f"; errors come in bursts (dispersion {bursty:.1f}), so the decision uses the "
                  f"interval widened by it" if bursty else "")
-        if outcome == "pass":
+        if loss.high_db < -BETTER_THAN_THEORY_DB:
+            outcome = "fail"
+            reason = (head + f": better than theory by more than {BETTER_THAN_THEORY_DB:g} dB, "
+                      f"which no demodulator achieves over this channel, so the noise "
+                      f"reference is wrong: " + _noise_reference(bench, opts) + extra)
+        elif outcome == "pass":
             reason = head + extra
         elif outcome == "fail":
-            reason = head + f": worse than the {opts['margin_db']:g} dB margin allows" + extra
+            reason = (head + f": worse than the {opts['margin_db']:g} dB margin allows" + extra
+                      + _consequence(bench))
         else:
             reason = (head + f": budget of {max_bits:.3g} bits spent before a decision (raise "
                       f"max_bits, or widen margin_db)" + extra)
         return Verdict(name, outcome, reason, statistic=ber, interval=interval, confidence=conf,
                        limit=p1, unit="BER", seed=seed, details=details)
+
+
+def _noise_reference(bench: Bench, opts) -> str:
+    """What is wrong with the noise reference, as far as the run knows."""
+    energy = bench.verdicts.get("energy")
+    es = bench.scale().es if bench.device.has("modulate") else 1.0
+    off_db = 10 * math.log10(es) if es > 0 else -math.inf
+    if opts["energy"] == "nominal" and abs(off_db) > 0.1:  # the energy check's tolerance
+        named = (", the defect the energy verdict names" if energy is not None and
+                 energy.outcome == "fail" else "")
+        return (f"the noise is set for the nominal Es = 1, but the device's symbols carry "
+                f"Es = {es:.4g} ({off_db:+.2f} dB{named}); fix the energy "
+                f"normalisation, or set checks.ber.energy: measured to judge the demodulator "
+                f"at the device's own scale")
+    return ("the symbol energy is what the noise was set for, so check the noise variance "
+            "convention (noise_var is the complex variance N0 per sample, N0/2 on each of I "
+            "and Q) and any gain the demodulator applies or the device file declares "
+            "(full_scale, an undeclared scaling between modulator and demodulator)")
+
+
+#: earlier verdicts whose failure makes a BER point fail too, and why
+_CAUSES = {
+    "roundtrip": "the noiseless round trip already loses bits",
+    "gray": "the device's labelling is not Gray, and the theory curve assumes Gray labelling",
+    "mapping": "the device's table is not the claimed one, which the reference side decodes",
+    "energy": "the symbol energy is off, so the noise is not at the stated Eb/N0",
+}
+
+
+def _consequence(bench: Bench) -> str:
+    """``; a consequence of ...`` naming the earlier failures that explain a failing point."""
+    sides = bench.sides()
+    causes = [f"{name} failed: {why}" for name, why in _CAUSES.items()
+              if (v := bench.verdicts.get(name)) is not None and v.outcome == "fail"
+              and (name != "mapping" or ("reference" in sides and
+                                         "differing_labels" in v.details))]
+    return f"; likely a consequence of an earlier verdict ({'; '.join(causes)})" if causes else ""
 
 
 ORACLE = BerOracle()

@@ -4,7 +4,10 @@ RMS EVM per the 3GPP definition, ``sqrt(sum|z - i|^2 / (N P0))`` with ``P0`` the
 of the ideal symbols (3GPP TS 38.104 Annex B / TS 38.101-1 Annex F — annex letters from memory),
 in percent and dB, with the peak EVM and per-label error statistics, measured noiselessly on a
 PRBS probe after the alignment (the one-tap equaliser of a single-carrier signal) and the
-matched filter. The default limit per modulation is the base-station requirement of 3GPP
+matched filter, at the device's measured scale (:meth:`~modemverify.bench.Bench.scale`: a device
+whose only defect is its normalisation fails ``energy``, not ``evm``). When ``mapping`` failed,
+the error vectors against the claimed points would measure the mapping defect, not signal
+quality, so the verdict is skipped naming it. The default limit per modulation is the base-station requirement of 3GPP
 TS 38.104 6.5.2.2, Table 6.5.2.2-1 (QPSK 17.5 %, 16QAM 12.5 %, 64QAM 8 %, 256QAM 3.5 %); that
 table is for a transmitter measured with the standard's own procedure and equipment, so a
 pass here is a sanity bound, not that requirement met.
@@ -22,6 +25,7 @@ from ..records import EvmRecord, EyeRecord
 from ..schemes.labels import bits_to_labels, label_string
 from ..vectors.bits import random_bits
 from ..verdict import Verdict
+from ._table import claimed_table_failed
 from .base import Oracle
 
 __all__ = ["EvmOracle", "ORACLE"]
@@ -39,6 +43,11 @@ class EvmOracle(Oracle):
         "symbols": Opt("int", 8192, "symbols in the probe", minimum=64),
     }
 
+    def blocked_by(self, bench):
+        return claimed_table_failed(
+            bench, "the device's points are not the claimed table, so error vectors against "
+                   "it would measure the mapping defect, not signal quality")
+
     def run(self, bench, opts, rng, seed):
         mod = bench.convention.modulation
         limit = opts["limit_percent"] if opts["limit_percent"] is not None else evm_limit(mod)
@@ -49,22 +58,17 @@ class EvmOracle(Oracle):
         n = opts["symbols"]
         bits = random_bits(rng, n * k)
         raw = bench.device.modulate(bits)
-        measured = bench.device_symbols(raw, n)
+        # at the device's measured scale: the alignment (the one-tap equaliser of a waveform)
+        # already removed a waveform's gain; symbols judged as they come are divided by the
+        # gain measured on the label probe (a positive gain, as the mapping check allows — a
+        # complex equaliser would hide a rotated or relabelled table)
+        measured = bench.device_symbols(raw, n, at_reference_scale=True)
         labels = bits_to_labels(bits, k)
         ideal = bench.convention.points[labels]
         # skip the symbols the filter tails touch at either end of a shaped probe
         edge = bench.spec.scheme.pulse.span if bench.spec.scheme.shaped else 0
         core = slice(edge, n - edge) if n > 4 * edge else slice(None)
-        # the 3GPP EVM is measured after an equaliser: the alignment already removed the gain
-        # of a waveform; a symbol-rate device is scaled to the reference's power (a positive
-        # gain, as the mapping check allows — a one-tap complex equaliser would hide a
-        # rotated or relabelled table, and blow up when the table is wrong)
-        m = measured[core]
-        if bench.alignment() is None:
-            p_m = float(np.vdot(m, m).real)
-            if p_m > 0:
-                m = m * np.sqrt(np.vdot(ideal[core], ideal[core]).real / p_m)
-        res = evm_of(m, ideal[core], labels[core])
+        res = evm_of(measured[core], ideal[core], labels[core])
         worst = sorted(res.per_label.items(), key=lambda kv: -kv[1][1])[:4]
         per_label = {label_string(int(l), k): [float(abs(mean)), float(rms)]
                      for l, (mean, rms) in res.per_label.items()}

@@ -44,7 +44,7 @@ class FiniteOracle(Oracle):
                             "sequence", counterexample=f"bits={bits.tolist()}", seed=seed)]
         listed = ", ".join(f"{label_string(l, k)} -> {shown[l]}" for l in bad[:6])
         return [Verdict(self.name, "fail",
-                        f"{len(bad)} label{'s' if len(bad) > 1 else ''} give non-finite "
+                        f"{len(bad)} label{'s give' if len(bad) > 1 else ' gives'} non-finite "
                         f"samples: {listed}", statistic=float(len(bad)), limit=0.0,
                         unit="labels",
                         counterexample=f"bits={list(map(int, label_string(bad[0], k)))}",

@@ -49,6 +49,9 @@ class FixedPointOracle(Oracle):
                            "int8)"),
     }
 
+    def verdict_names(self, spec):
+        return [f"{self.name}.clipping", f"{self.name}.sqnr"]
+
     def applies(self, bench):
         fmt, _ = _format_of(bench)
         if not fmt.startswith("int"):

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..errors import AdapterError
 from ..options import Opt
 from ..vectors.prbs import prbs
 from ..verdict import Verdict
@@ -31,23 +32,33 @@ class LengthOracle(Oracle):
                        else "expected a list of positive whole numbers"),
     }
 
+    def verdict_names(self, spec):
+        return [f"{self.name}.modulate", f"{self.name}.demodulate"]
+
     def run(self, bench, opts, rng, seed):
         lengths = sorted(set(opts["symbols"]))
         k, sps = bench.k, bench.sps
         declared = bench.spec.scheme.tail_samples
         source = prbs("prbs15", max(lengths) * k)
-        verdicts = []
         for side in ("modulate", "demodulate"):
             if not bench.device.has(side):
+                yield Verdict(f"{self.name}.{side}", "skipped", f"the device has no {side}",
+                              seed=seed)
                 continue
             got_by_n = {}
-            for n in lengths:
-                bits = source[:n * k]
-                if side == "modulate":
-                    got_by_n[n] = bench.device.modulate(bits, check_length=False).size
-                else:
-                    samples = bench.reference.modulate(bits)
-                    got_by_n[n] = bench.device.demodulate(samples, check_length=False).size
+            try:
+                for n in lengths:
+                    bits = source[:n * k]
+                    if side == "modulate":
+                        got_by_n[n] = bench.device.modulate(bits, check_length=False).size
+                    else:
+                        samples = bench.reference.modulate(bits)
+                        got_by_n[n] = bench.device.demodulate(samples, check_length=False).size
+            except AdapterError as exc:  # one side broken: the other is still judged
+                yield Verdict(f"{self.name}.{side}", "error", f"the device failed: {exc}",
+                              seed=seed, details={"call": exc.call, "input": exc.input_summary,
+                                                  "stderr": exc.stderr})
+                continue
             unit = "samples" if side == "modulate" else "bits"
             if side == "modulate":
                 tails = {n: got - n * sps for n, got in got_by_n.items()}
@@ -66,25 +77,23 @@ class LengthOracle(Oracle):
             problems = [(n, got_by_n[n], want[n]) for n in lengths if got_by_n[n] != want[n]]
             name = f"{self.name}.{side}"
             if not problems:
-                verdicts.append(Verdict(name, "pass",
-                                        f"{side} output length correct ({rule}) for "
-                                        f"{len(lengths)} input lengths from {lengths[0]} to "
-                                        f"{lengths[-1]} symbols", statistic=0.0, limit=0.0,
-                                        seed=seed))
+                yield Verdict(name, "pass",
+                              f"{side} output length correct ({rule}) for {len(lengths)} input "
+                              f"lengths from {lengths[0]} to {lengths[-1]} symbols",
+                              statistic=0.0, limit=0.0, seed=seed)
                 continue
             n, got, want_n = problems[0]
             deltas = sorted({g - w for _, g, w in problems})
             pattern = (f"always {deltas[0]:+d} {unit}" if len(deltas) == 1
                        else f"off by {', '.join(f'{d:+d}' for d in deltas[:5])} {unit}")
-            verdicts.append(Verdict(
+            yield Verdict(
                 name, "fail",
                 f"{side} returned the wrong number of {unit} for {len(problems)} of "
                 f"{len(lengths)} lengths ({pattern}; expected {rule}); first at {n} symbols: "
                 f"{got} instead of {want_n}", statistic=float(len(problems)), limit=0.0,
                 unit="lengths wrong",
                 counterexample=f"{n} symbols ({n * k} bits) -> {got} {unit}, expected {want_n}",
-                seed=seed, details={"wrong": [list(p) for p in problems]}))
-        return verdicts
+                seed=seed, details={"wrong": [list(p) for p in problems]})
 
 
 ORACLE = LengthOracle()

@@ -1,7 +1,11 @@
 """``llr``: soft outputs — sign convention, calibration and mutual information.
 
-The device's LLRs (``demodulate_soft``) for noisy reference-quality samples are judged three
-ways, each a verdict:
+The device's LLRs (``demodulate_soft``) for noisy samples of its own modulator (or the
+reference's, for a receiver-only device) are judged three ways, each a verdict, at the device's
+measured scale: the noise is set for the energy its symbols carry and the reference demapper
+sees the same samples at the reference's scale, so that a normalisation defect fails ``energy``
+alone. When ``mapping`` failed the reference demapper would decode another table, so the check
+is skipped naming it; when ``llr.sign`` fails the other two are skipped naming it.
 
 ``llr.sign``
     The sign convention: with ``scheme.llr_positive_bit: 0`` (the default) a positive LLR means
@@ -32,9 +36,13 @@ from ..schemes.theory import THEORY_MODULATIONS, default_ebn0_points
 from ..vectors.bits import random_bits
 from ..vectors.channels import Awgn
 from ..verdict import Verdict
+from ._table import claimed_table_failed
 from .base import Oracle
 
-__all__ = ["mutual_information", "best_scale", "LlrOracle", "ORACLE"]
+__all__ = ["PARTS", "mutual_information", "best_scale", "LlrOracle", "ORACLE"]
+
+#: the verdicts of the check, ``llr.<part>``, in order
+PARTS = ("sign", "calibration", "mutual_information")
 
 
 def _nll(scale: float, llr: np.ndarray, sign: np.ndarray) -> float:
@@ -75,6 +83,14 @@ class LlrOracle(Oracle):
                             "bit", minimum=0),
     }
 
+    def verdict_names(self, spec):
+        return [f"{self.name}.{part}" for part in PARTS]
+
+    def blocked_by(self, bench):
+        return claimed_table_failed(
+            bench, "the device's table is not the claimed one, so the reference "
+                   "demapper would decode another table")
+
     def run(self, bench: Bench, opts, rng, seed):
         k, sps = bench.k, bench.sps
         mod = bench.convention.modulation
@@ -85,45 +101,60 @@ class LlrOracle(Oracle):
         n = opts["bits"] - opts["bits"] % (8 * k)
         bits = random_bits(rng, n)
         tx = bench.transmit(bits)
-        awgn = Awgn(ebn0, k, sps, nominal_es=1.0)
+        # at the device's measured scale: the noise is set for the energy its symbols carry
+        # (so Eb/N0 is what the verdicts say), the device is told that noise variance, and the
+        # reference demapper sees the same samples at the reference's scale with the noise
+        # variance scaled alike — a device whose only defect is its normalisation fails energy,
+        # not llr
+        scale = bench.scale()
+        awgn = Awgn(ebn0, k, sps, nominal_es=scale.es if scale.es > 0 else 1.0)
         rx = awgn.apply(tx, rng)
         nv = awgn.noise_variance()
         llr = bench.device.demodulate_soft(rx, nv, n_bits=n)
-        if bench.spec.scheme.llr_positive_bit == 1:
+        declared = bench.spec.scheme.llr_positive_bit
+        if declared == 1:
             llr = -llr  # judge everything in the positive-means-0 convention
-        ref = bench.reference.demodulate_soft(rx if not bench.device.has("modulate") else
-                                              bench.aligned_waveform(rx, n // k), nv, n_symbols=n // k)
+        if bench.device.has("modulate"):
+            ref = bench.reference.demodulate_soft(bench.reference_waveform(rx, n // k),
+                                                  nv / scale.total ** 2, n_symbols=n // k)
+        else:
+            ref = bench.reference.demodulate_soft(rx, nv, n_symbols=n // k)
         where = f"at Eb/N0 {ebn0:g} dB over {n} bits"
-        out = []
+        at_scale = (f" (the device's own scale, {scale.db:+.2f} dB from the reference's)"
+                    if abs(scale.db) > 0.1 else "")
 
         # sign: agreement with the exact reference LLR where the reference is confident
         confident = np.abs(ref) > 1.0
         agree = float(np.mean(np.sign(llr[confident]) == np.sign(ref[confident]))) \
             if confident.any() else math.nan
-        declared = bench.spec.scheme.llr_positive_bit
         if agree >= 0.9:
-            out.append(Verdict("llr.sign", "pass",
-                               f"positive LLR means bit {declared}, as declared: signs agree with "
-                               f"the reference demapper on {agree:.1%} of confident bits {where}",
-                               statistic=agree, limit=0.9, unit="agreement", seed=seed))
-        elif agree <= 0.1:
-            out.append(Verdict("llr.sign", "fail",
-                               f"LLR sign is flipped: a positive LLR means bit {1 - declared}, "
-                               f"but the device file declares {declared} (signs disagree with "
-                               f"the reference on {1 - agree:.1%} of confident bits {where}); "
-                               f"fix the device or set scheme.llr_positive_bit: {1 - declared}",
-                               statistic=agree, limit=0.9, unit="agreement", seed=seed))
-            return out  # calibration and MI are meaningless with the wrong sign
+            yield Verdict("llr.sign", "pass",
+                          f"positive LLR means bit {declared}, as declared: signs agree with "
+                          f"the reference demapper on {agree:.1%} of confident bits "
+                          f"{where}{at_scale}", statistic=agree, limit=0.9, unit="agreement",
+                          seed=seed)
         else:
-            out.append(Verdict("llr.sign", "fail",
-                               f"LLR signs agree with the reference on only {agree:.1%} of "
-                               f"confident bits {where}: some label bits are flipped or "
-                               f"reordered", statistic=agree, limit=0.9, unit="agreement",
-                               seed=seed, details={"per_bit_agreement": [
-                                   float(np.mean(np.sign(llr.reshape(-1, k)[:, i]) ==
-                                                 np.sign(ref.reshape(-1, k)[:, i])))
-                                   for i in range(k)]}))
-            return out
+            if agree <= 0.1:
+                reason = (f"LLR sign is flipped: a positive LLR means bit {1 - declared}, but "
+                          f"the device file declares {declared} (signs disagree with the "
+                          f"reference on {1 - agree:.1%} of confident bits {where}{at_scale}); "
+                          f"fix the device or set scheme.llr_positive_bit: {1 - declared}")
+                details = {}
+            else:
+                per_bit = [float(np.mean(np.sign(llr.reshape(-1, k)[:, i]) ==
+                                         np.sign(ref.reshape(-1, k)[:, i]))) for i in range(k)]
+                reason = (f"LLR signs agree with the reference on only {agree:.1%} of "
+                          f"confident bits {where}{at_scale}: some label bits are flipped or "
+                          f"reordered (agreement per label bit: "
+                          f"{', '.join(f'b{i} {a:.0%}' for i, a in enumerate(per_bit))})")
+                details = {"per_bit_agreement": per_bit}
+            yield Verdict("llr.sign", "fail", reason, statistic=agree, limit=0.9,
+                          unit="agreement", seed=seed, details=details)
+            why = ("not judged because llr.sign failed: calibration and information are "
+                   "measured in the declared sign convention")
+            for part in PARTS[1:]:
+                yield Verdict(f"llr.{part}", "skipped", why, seed=seed)
+            return
 
         s, se = best_scale(llr, bits)
         s_ref, _ = best_scale(ref, bits)
@@ -132,19 +163,18 @@ class LlrOracle(Oracle):
         interval = (s - z * se, s + z * se)
         details = {"scale": s, "scale_se": se, "reference_scale": s_ref, "ebn0_db": ebn0}
         if abs(s - 1) <= tol:
-            out.append(Verdict("llr.calibration", "pass",
-                               f"best-fit LLR scale {s:.3f} (reference demapper {s_ref:.3f}) "
-                               f"{where}: within {tol:g} of 1", statistic=s, interval=interval,
-                               confidence=0.95, limit=tol, unit="scale", seed=seed,
-                               details=details))
+            yield Verdict("llr.calibration", "pass",
+                          f"best-fit LLR scale {s:.3f} (reference demapper {s_ref:.3f}) "
+                          f"{where}: within {tol:g} of 1", statistic=s, interval=interval,
+                          confidence=0.95, limit=tol, unit="scale", seed=seed, details=details)
         else:
             what = "over-confident" if s < 1 else "under-confident"
-            out.append(Verdict("llr.calibration", "fail",
-                               f"LLRs are {what}: the best-fit scale is {s:.3f} (multiply the "
-                               f"device's LLRs by it to calibrate; the reference demapper gives "
-                               f"{s_ref:.3f}) {where}; allowed {1 - tol:g} to {1 + tol:g}",
-                               statistic=s, interval=interval, confidence=0.95, limit=tol,
-                               unit="scale", seed=seed, details=details))
+            yield Verdict("llr.calibration", "fail",
+                          f"LLRs are {what}: the best-fit scale is {s:.3f} (multiply the "
+                          f"device's LLRs by it to calibrate; the reference demapper gives "
+                          f"{s_ref:.3f}) {where}; allowed {1 - tol:g} to {1 + tol:g}",
+                          statistic=s, interval=interval, confidence=0.95, limit=tol,
+                          unit="scale", seed=seed, details=details)
 
         mi = mutual_information(llr, bits)
         mi_ref = mutual_information(ref, bits)
@@ -152,12 +182,11 @@ class LlrOracle(Oracle):
         mtol = opts["mi_tolerance"]
         mdetails = {"mi": mi, "mi_reference": mi_ref, "ebn0_db": ebn0}
         outcome = "pass" if short <= mtol else "fail"
-        out.append(Verdict("llr.mutual_information", outcome,
-                           f"bitwise mutual information {mi:.4f} vs {mi_ref:.4f} for the exact "
-                           f"reference demapper {where} (shortfall {short:+.4f}, allowed "
-                           f"{mtol:g})", statistic=mi, limit=mi_ref - mtol, unit="bit/bit",
-                           seed=seed, details=mdetails))
-        return out
+        yield Verdict("llr.mutual_information", outcome,
+                      f"bitwise mutual information {mi:.4f} vs {mi_ref:.4f} for the exact "
+                      f"reference demapper {where} (shortfall {short:+.4f}, allowed "
+                      f"{mtol:g})", statistic=mi, limit=mi_ref - mtol, unit="bit/bit",
+                      seed=seed, details=mdetails)
 
 
 ORACLE = LlrOracle()

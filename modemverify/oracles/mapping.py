@@ -58,6 +58,7 @@ class MappingOracle(Oracle):
                                f"{table.probe_symbols} labels", seed=seed, details=details)]
         if table.source == "demodulate" and np.any(np.isnan(table.points)):
             missing = [label_string(l, k) for l in np.nonzero(np.isnan(table.points))[0]]
+            details["differing_labels"] = missing
             return [Verdict(self.name, "fail",
                             f"the demodulator never decides labels {', '.join(missing[:8])} on "
                             f"the {conv.name} points: two points share a decision", seed=seed,

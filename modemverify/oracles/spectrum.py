@@ -64,6 +64,13 @@ class SpectrumOracle(Oracle):
         "aclr": Opt("mapping", None, "{bandwidth_rs, offset_rs, min_db}", check=_aclr),
     }
 
+    def verdict_names(self, spec):
+        opts = spec.checks.get(self.name) or {}
+        parts = ["obw"] + [part for part, key in (("xdb", "x_db_limit_rs"), ("mask", "mask"),
+                                                  ("aclr", "aclr"))
+                           if opts.get(key) is not None]
+        return [f"{self.name}.{part}" for part in parts]
+
     def applies(self, bench):
         if bench.sps < 2:
             return ("one sample per symbol: the output is the symbol sequence itself, with no "
@@ -78,8 +85,8 @@ class SpectrumOracle(Oracle):
         try:
             f, psd = welch_psd(x, sps)
         except ConfigError as exc:
-            return [Verdict(f"{self.name}.obw", "error", f"spectrum not measurable: "
-                            f"{exc.raw_message}", seed=seed)]
+            return [Verdict(name, "error", f"spectrum not measurable: {exc.raw_message}",
+                            seed=seed) for name in self.verdict_names(bench.spec)]
         pulse = bench.spec.scheme.pulse
         expected = float(pulse.occupied_bandwidth(0.99, truncated=True))
         width, lo, hi = occupied_bandwidth(f, psd, 0.99)

@@ -160,3 +160,75 @@ def test_modulate_only_device_is_judged_through_the_reference_receiver():
                        checks={"ber": {"ebn0_db": [6]}})
     v = next(v for v in res.verdicts if v.name.startswith("ber."))
     assert v.outcome == "fail" and "reference demodulate" in v.details["sides"]
+    assert "consequence of an earlier verdict (energy failed" in v.reason
+
+
+# --- no pass better than theory -----------------------------------------------------------
+class Loud(Qpsk):
+    """The TS 38.211 QPSK points without the 1/sqrt(2): Es = 2, 3.01 dB above the table."""
+
+    def modulate(self, bits):
+        return super().modulate(bits) * np.sqrt(2)
+
+
+def test_better_than_theory_fails_and_names_the_symbol_energy():
+    res = check_object(Loud(), modulation="qpsk", convention="3gpp",
+                       checks={"ber": {"ebn0_db": [4, 6]}})
+    v = {x.name: x for x in res.verdicts}
+    assert v["energy"].outcome == "fail"
+    for name in ("ber.ebn0=4dB", "ber.ebn0=6dB"):
+        # noise set for Es = 1 on symbols of Es = 2: the device works 3 dB above the stated
+        # Eb/N0, so the loss comes out near -3 dB
+        assert v[name].outcome == "fail", v[name].reason
+        assert v[name].details["loss_interval_db"][1] < -2
+        assert "noise reference is wrong" in v[name].reason
+        assert "Es = 2 (+3.01 dB, the defect the energy verdict names)" in v[name].reason
+        assert "checks.ber.energy: measured" in v[name].reason
+
+
+def test_at_the_measured_energy_the_same_device_passes():
+    vs = ber_verdicts(Loud(), ebn0_db=[4, 6], energy="measured")
+    assert [v.outcome for v in vs] == ["pass", "pass"], [v.reason for v in vs]
+
+
+def test_better_than_theory_at_the_right_energy_points_at_the_noise_convention():
+    class Loopback(Qpsk):
+        """A demodulator that returns the bits last modulated: it never listens."""
+
+        def modulate(self, bits):
+            self.sent = np.asarray(bits, dtype=np.uint8).copy()
+            return super().modulate(bits)
+
+        def demodulate(self, samples):
+            return self.sent
+
+    vs = ber_verdicts(Loopback(), ebn0_db=[4])
+    assert vs[0].outcome == "fail" and vs[0].statistic == 0
+    assert "noise reference is wrong" in vs[0].reason
+    assert "noise variance convention" in vs[0].reason
+
+
+def test_the_bound_leaves_a_correct_device_safe():
+    # A correct device fails the bound only when the upper end of its BER interval lies below
+    # theory at Eb/N0 + BETTER_THAN_THEORY_DB. On the smallest sample a point uses (one block of
+    # 2^17 bits), at the familywise risk 0.05 / 3 (interval confidence 1 - 2 x risk), the chance
+    # is computed from the binomial law and the Clopper-Pearson upper end (the beta quantile,
+    # Clopper & Pearson, Biometrika 26(4), 1934), both from scipy: it stays below 3e-4 per point
+    # at the default points and at QPSK 4, 6, 8 dB, far below the check's stated risk of 0.05.
+    from scipy.stats import beta, binom
+
+    from modemverify.oracles.ber import BETTER_THAN_THEORY_DB, FIRST_BLOCK
+    from modemverify.schemes.theory import ber as theory_ber
+    from modemverify.schemes.theory import default_ebn0_points
+
+    n, risk = FIRST_BLOCK, 0.05 / 3
+    cases = [("qpsk", x) for x in (4, 6, 8)] + [
+        (m, x) for m in ("qpsk", "16qam", "64qam") for x in default_ebn0_points(m)]
+    for mod, x in cases:
+        p0 = theory_ber(mod, x)
+        k = np.arange(0, int(3 * n * p0) + 20)
+        upper = beta.ppf(1 - risk, k + 1, n - k)
+        below = k[upper < theory_ber(mod, x + BETTER_THAN_THEORY_DB)]
+        chance = binom.cdf(below.max(), n, p0) if below.size else 0.0
+        assert chance < 3e-4, (mod, x, chance)
+

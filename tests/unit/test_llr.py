@@ -59,6 +59,37 @@ def test_flipped_sign_fails_and_says_so():
     vs = llr_verdicts(Qam16Soft(flip=True))
     assert vs["llr.sign"].outcome == "fail" and "sign is flipped" in vs["llr.sign"].reason
     assert "llr_positive_bit: 1" in vs["llr.sign"].reason
+    # the other parts keep their names, skipped with the verdict they depend on
+    for part in ("llr.calibration", "llr.mutual_information"):
+        assert vs[part].outcome == "skipped" and "llr.sign failed" in vs[part].reason
+
+
+class Integer16Soft(Qam16Soft):
+    """The same demapper on the integer grid (points at +-1, +-3: the table times sqrt(10)),
+    its distances measured on that grid with the noise variance it is given."""
+
+    def __init__(self, **kw):
+        super().__init__(**kw)
+        self.points = self.points * S10
+
+
+def test_soft_outputs_are_judged_at_the_device_scale():
+    # a normalisation defect fails energy; the LLRs, exact for the device's own points and the
+    # noise it is told, pass (before, the unit-energy reference saw integer-grid samples)
+    res = check_object(Integer16Soft(), modulation="16qam", convention="3gpp")
+    v = {x.name: x for x in res.verdicts}
+    assert v["energy"].outcome == "fail"
+    for part in ("llr.sign", "llr.calibration", "llr.mutual_information"):
+        assert v[part].outcome == "pass", v[part].reason
+    assert "+10.00 dB from the reference" in v["llr.sign"].reason
+
+
+def test_soft_outputs_are_skipped_naming_mapping_when_the_table_is_another():
+    res = check_object(Qam16Soft(), modulation="16qam", convention="ieee802.11")
+    v = {x.name: x for x in res.verdicts}
+    assert v["mapping"].outcome == "fail"
+    for part in ("llr.sign", "llr.calibration", "llr.mutual_information"):
+        assert v[part].outcome == "skipped" and "mapping failed" in v[part].reason
 
 
 def test_declared_opposite_convention_passes():

@@ -15,8 +15,8 @@ def run(bench, name, **opts):
     oracle = ORACLES[name]
     from modemverify.options import validate_options
 
-    return run_oracle(oracle, bench, validate_options(oracle.options, opts, file=None,
-                                                      key=name), seed=7)
+    return list(run_oracle(oracle, bench, validate_options(oracle.options, opts, file=None,
+                                                           key=name), seed=7))
 
 
 def ref_table(mod="16qam", conv="3gpp"):
@@ -181,3 +181,49 @@ def test_roundtrip_with_one_side_uses_reference(bench_for):
     dev = TableModem(ref_table("qpsk"), 2, sides=("modulate",))
     [v] = run(bench_for(dev, "qpsk"), "roundtrip")
     assert v.outcome == "pass" and "reference demodulate" in v.reason
+
+
+# --- one defect, one failing verdict ------------------------------------------------------
+def test_evm_is_skipped_naming_mapping_when_the_table_is_another(bench_for):
+    t = ref_table()
+    bench = bench_for(TableModem(t.imag + 1j * t.real, 4), "16qam")  # arms swapped
+    assert run(bench, "mapping")[0].outcome == "fail"
+    [v] = run(bench, "evm")
+    assert v.outcome == "skipped" and "not judged because mapping failed" in v.reason
+
+
+def test_evm_still_judges_a_table_whose_points_depend_on_neighbours(bench_for):
+    class Leaky(TableModem):
+        def modulate(self, bits):
+            y = super().modulate(bits)
+            y[1:] += 0.2 * y[:-1]  # the table is the claimed one, smeared: EVM measures that
+            return y
+
+    bench = bench_for(Leaky(ref_table(), 4), "16qam")
+    assert run(bench, "mapping")[0].outcome == "fail"
+    [v] = run(bench, "evm")
+    assert v.outcome == "fail" and v.statistic > 12.5
+
+
+def test_a_scaled_device_fails_energy_alone(bench_for):
+    # the 3GPP table without its 1/sqrt(10) (TS 38.211 5.1.4): only energy may fail
+    bench = bench_for(TableModem(ref_table() * np.sqrt(10), 4), "16qam")
+    verdicts = [v for name in ORACLES if name != "ber" for v in run(bench, name)]
+    failed = [v.name for v in verdicts if v.outcome not in ("pass", "skipped")]
+    assert failed == ["energy"], [v.reason for v in verdicts if v.name in failed]
+    assert bench.scale().gain == pytest.approx(np.sqrt(10), rel=1e-12)
+    assert bench.scale().symbol_gain == pytest.approx(np.sqrt(10), rel=1e-12)
+
+
+def test_a_scaled_transmitter_is_received_at_its_own_scale(bench_for):
+    # modulate only: the reference's slicer hears the device through its measured gain
+    dev = TableModem(ref_table() * 3.0, 4, sides=("modulate",))
+    [v] = run(bench_for(dev, "16qam"), "roundtrip")
+    assert v.outcome == "pass" and "reference demodulate" in v.reason
+
+
+def test_oracles_declare_the_names_they_report(bench_for):
+    bench = bench_for(TableModem(ref_table(), 4), "16qam")
+    for name, oracle in ORACLES.items():
+        got = [v.name for v in run(bench, name)]
+        assert got == oracle.verdict_names(bench.spec), name

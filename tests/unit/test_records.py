@@ -39,4 +39,8 @@ def test_every_record_has_exactly_its_declared_keys(swap):
     assert checked >= 4  # mapping, evm, spectrum.obw and the BER points
     if swap:
         assert set(v["mapping"].details) >= {"relation", "differing_labels"}
-    assert "eye" in v["evm"].details and "mask_result" in v["spectrum.obw"].details
+        # another table: evm is not judged (skipped, naming mapping), so it has no record
+        assert v["evm"].outcome == "skipped"
+    else:
+        assert "eye" in v["evm"].details
+    assert "mask_result" in v["spectrum.obw"].details
