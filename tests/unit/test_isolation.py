@@ -59,6 +59,12 @@ class Qpsk:
             Path(self.marker).write_text(str(pid))
         if m == "fork-hang":
             time.sleep(3600)
+        if m in ("abort-once", "hang-once") and 36 <= bits.size < 128 and \
+                not Path(self.marker).exists():  # once, on a length only the search draws
+            Path(self.marker).write_text(str(bits.size))
+            if m == "abort-once":
+                os.abort()
+            time.sleep(3600)
         if m == "keyboardinterrupt":
             raise KeyboardInterrupt
         if m == "baseexception":
@@ -387,3 +393,23 @@ def test_the_worker_path_puts_the_working_folder_last(tmp_path):
     here = str(tmp_path)
     assert worker_path(["", "/opt/lib", here, "/site"], here) == ["/opt/lib", "/site", here]
     assert worker_path(["/opt/lib"], here) == ["/opt/lib"]
+
+
+@pytest.mark.parametrize("misbehave, words", [
+    ("abort-once", "was killed by signal SIGABRT"),
+    ("hang-once", "did not return within timeout_s=0.5 s"),
+])
+def test_a_failure_of_the_device_during_the_search_is_an_error_not_a_fail(
+        tmp_path, misbehave, words):
+    # the device fails once, on a length only hypothesis draws: the search stops there and the
+    # verdict quotes the error (a rerun would pass, which used to make it a "fail")
+    marker = tmp_path / "once"
+    path = device_file(tmp_path, misbehave, timeout_s=0.5, params={"marker": str(marker)})
+    (v,) = check(path, only=["roundtrip"]).verdicts
+    assert marker.exists(), "the search never drew a length the device fails on"
+    n = int(marker.read_text())
+    assert v.outcome == "error", (v.reason, v.counterexample)
+    assert "the device failed on a generated sequence: modulate(): " in v.reason
+    assert words in v.reason and f"bits[{n}]=" in v.reason
+    assert "does not return the bits sent" not in v.reason
+    assert v.counterexample.startswith("bits=[") and words in v.counterexample

@@ -81,6 +81,9 @@ while True:
         continue
     if mode == "wrong-seq":
         seq += 1
+    if mode == "wrong-seq-once" and 36 <= n < 128 and not os.path.exists("once"):
+        open("once", "w").write(str(n))  # once, on a length only the search draws
+        seq += 1
     a = 0.7071067811865476
     out = b"".join(struct.pack("<ff", a - 2 * a * payload[i], a - 2 * a * payload[i + 1])
                    for i in range(0, len(payload), 2))
@@ -437,3 +440,13 @@ def test_after_a_run_no_process_the_device_started_is_alive(tmp_path):
     started = _pids(pids)
     assert len(started) == 2
     assert _all_gone(started) == []
+
+
+def test_a_protocol_error_during_the_search_is_an_error_not_a_fail(tmp_path):
+    (v,) = check(scripted(tmp_path, "wrong-seq-once"), only=["roundtrip"]).verdicts
+    assert (tmp_path / "once").exists(), "the search never drew a length the device fails on"
+    n = int((tmp_path / "once").read_text())
+    assert v.outcome == "error", (v.reason, v.counterexample)
+    assert "the device failed on a generated sequence: modulate(): protocol error: reply " \
+           "numbered" in v.reason and f"bits[{n}]=" in v.reason
+    assert "does not return the bits sent" not in v.reason
