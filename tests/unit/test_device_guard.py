@@ -165,18 +165,34 @@ def test_a_real_interrupt_during_a_call_still_stops_the_run(tmp_path):
         assert signal.getsignal(signal.SIGINT) is signal.default_int_handler
 
 
-def test_sys_exit_in_the_cli_gives_exit_1_and_a_junit_file_naming_the_device(tmp_path):
-    path = device_file(tmp_path, "exit", params={"code": 0}, checks=FAST)
+def test_exits_in_the_cli_give_exit_1_and_a_junit_file_naming_every_device(tmp_path):
+    # sys.exit(0) in modulate, sys.exit(4) in the constructor, sys.exit(0) at import, then a
+    # correct device: every one is judged and listed, and the run is not green
+    paths = [device_file(tmp_path, "exit", params={"code": 0}, checks=FAST),
+             device_file(tmp_path, "exit-in-constructor", params={"code": 4})]
+    at_import = tmp_path / "import"
+    at_import.mkdir()
+    (at_import / "exit-at-import").write_text("0")
+    paths.append(device_file(at_import, "exits-at-import"))
+    paths.append(device_file(tmp_path, "strided", checks=FAST))
     junit = tmp_path / "junit.xml"
-    proc = subprocess.run([sys.executable, "-m", "modemverify.cli", "check", str(path),
+    proc = subprocess.run([sys.executable, "-m", "modemverify.cli", "check", *map(str, paths),
                            "--junit", str(junit)], capture_output=True, text=True, timeout=300,
                           env={**os.environ, "PYTHONPATH": os.pathsep.join(sys.path)})
     assert proc.returncode == 1, proc.stdout + proc.stderr
-    assert "Traceback" not in proc.stderr
-    suite = ET.parse(junit).getroot().find("testsuite")
-    assert suite.get("name") == "dev-exit"
-    errors = [c for c in suite.findall("testcase") if c.find("error") is not None]
-    assert errors and "SystemExit(0)" in errors[0].find("error").get("message")
+    assert "Traceback" not in proc.stdout + proc.stderr
+    suites = {s.get("name"): s for s in ET.parse(junit).getroot().findall("testsuite")}
+    assert set(suites) == {"dev-exit", "dev-exit-in-constructor", "dev-exits-at-import",
+                           "dev-strided"}
+
+    def errors(name):
+        return [c.find("error").get("message") for c in suites[name].findall("testcase")
+                if c.find("error") is not None]
+
+    assert any("SystemExit(0)" in m for m in errors("dev-exit"))
+    assert any("open(): raised SystemExit(4)" in m for m in errors("dev-exit-in-constructor"))
+    assert any("open(): raised SystemExit(0)" in m for m in errors("dev-exits-at-import"))
+    assert errors("dev-strided") == [] and int(suites["dev-strided"].get("failures")) == 0
 
 
 def test_a_strided_view_is_a_correct_answer(tmp_path):
