@@ -19,7 +19,7 @@ import random
 
 import numpy as np
 from hypothesis import HealthCheck, Phase, find, settings
-from hypothesis.errors import NoSuchExample
+from hypothesis.errors import Flaky, NoSuchExample
 
 from ..bench import Bench
 from ..errors import AdapterError
@@ -100,11 +100,16 @@ class RoundtripOracle(Oracle):
                 first_failure = (label, bits, problem)
                 break
 
+        failed: list = []  # the sequences that failed, for a failure that does not recur
+
         def fails(b) -> bool:
             try:
-                return outcome(b) is not None
+                bad = outcome(b) is not None
             except AdapterError as exc:
                 raise _DeviceFailed(exc, b) from None
+            if bad:
+                failed.append(b)
+            return bad
 
         # hypothesis: find the smallest failing sequence (always searched, so a failure that
         # only short or odd-length inputs trigger is found too)
@@ -118,6 +123,8 @@ class RoundtripOracle(Oracle):
                            fails, settings=hyp_settings, random=random.Random(seed))
         except NoSuchExample:
             pass
+        except Flaky:  # failed once, then not: report the sequence it failed on
+            minimal = failed[-1] if failed else None
         except _DeviceFailed as stop:
             bits = np.asarray(stop.bits, dtype=np.uint8)
             return device_failed("a generated sequence", f"bits={_bits_text(bits, k)}",

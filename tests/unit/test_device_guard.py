@@ -297,3 +297,34 @@ def test_a_device_in_a_thread_cannot_fake_an_interrupt():
     t.join()
     device.close()
     assert caught and "raised KeyboardInterrupt itself" in caught[0]
+
+
+def test_wrong_bits_that_do_not_recur_are_a_fail_naming_the_sequence(tmp_path):
+    class FlipsOnce:
+        """QPSK (TS 38.211 5.1.3) whose demodulator flips a bit once, on the first sequence of
+        20 to 63 symbols it sees (a length only the search draws)."""
+
+        flipped = False
+
+        def modulate(self, bits):
+            b = bits.reshape(-1, 2)
+            return S * ((1 - 2.0 * b[:, 0]) + 1j * (1 - 2.0 * b[:, 1]))
+
+        def demodulate(self, samples):
+            bits = np.stack([samples.real < 0, samples.imag < 0], axis=1).astype(np.uint8)
+            bits = bits.ravel()
+            if not self.flipped and 20 <= samples.size < 64:
+                self.flipped = True
+                bits[0] ^= 1
+            return bits
+
+    from modemverify.runner import check_object
+
+    (v,) = check_object(FlipsOnce(), modulation="qpsk", convention="3gpp",
+                        checks={name: False for name in ("finite", "length", "energy",
+                                                         "mapping", "gray", "evm", "ber",
+                                                         "llr", "alignment", "spectrum",
+                                                         "fixed_point")}).verdicts
+    assert v.name == "roundtrip" and v.outcome == "fail", (v.reason, v.counterexample)
+    assert v.counterexample.startswith("bits=[") and "failed once, passed when rerun" in \
+        v.counterexample
