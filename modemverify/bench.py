@@ -272,15 +272,23 @@ def measure_alignment(bench: Bench, allowed: dict | None = None) -> AppliedAlign
 def open_bench(spec: DeviceSpec, adapter=None) -> Bench:
     """Open the device of a validated spec (or use ``adapter``, already open).
 
-    Raises ConfigError or AdapterError.
+    The opening (importing the device, constructing it) runs under the device guard
+    (:meth:`GuardedDevice.opening`): what it raises, ``sys.exit`` included, is an AdapterError
+    naming ``open``. Raises ConfigError or AdapterError.
     """
-    if adapter is None:
-        # ``isolate: true`` runs the adapter in a worker process (adapters/isolated.py)
-        adapter = open_adapter(spec)
     scheme = spec.scheme
-    device = GuardedDevice(adapter, scheme.bits_per_symbol, scheme.samples_per_symbol,
-                           name=spec.name, tail_samples=scheme.tail_samples,
-                           input_tail=scheme.pulse.tail)
-    conv = scheme.reference
-    return Bench(spec=spec, device=device, convention=conv,
-                 reference=ReferenceModem(conv, scheme.samples_per_symbol, scheme.pulse))
+
+    def opener():
+        # ``isolate: true`` runs the adapter in a worker process (adapters/isolated.py)
+        return open_adapter(spec) if adapter is None else adapter
+
+    device = GuardedDevice.opening(opener, scheme.bits_per_symbol, scheme.samples_per_symbol,
+                                   name=spec.name, tail_samples=scheme.tail_samples,
+                                   input_tail=scheme.pulse.tail)
+    try:
+        conv = scheme.reference
+        return Bench(spec=spec, device=device, convention=conv,
+                     reference=ReferenceModem(conv, scheme.samples_per_symbol, scheme.pulse))
+    except BaseException:
+        device.close()
+        raise

@@ -16,21 +16,45 @@ Adapters know nothing of oracles. The harness never calls an adapter directly: i
 :class:`GuardedDevice`, which turns whatever the device does wrong (raises, returns the wrong
 type, shape or length, NaN) into an :class:`~modemverify.errors.AdapterError` that names the call
 and the input, so an oracle can report it as a verdict and the run goes on.
+:meth:`GuardedDevice.opening` puts the opening of a device (importing it, constructing it)
+under the same guard.
+
+What the guard turns into an ``AdapterError`` (and so an ``error`` verdict): any exception,
+``SystemExit`` (``sys.exit`` inside the device), any other ``BaseException`` subclass, and a
+``KeyboardInterrupt`` the device raises itself. A ``KeyboardInterrupt`` that comes from Ctrl-C
+or SIGTERM reaching the harness still stops the run: while a device is open the guard counts
+those signals (it wraps the Python handlers of SIGINT and SIGTERM, calling the previous
+handler unchanged), so it can tell the two apart; where it cannot see the signals (a handler
+installed after the device opened), every ``KeyboardInterrupt`` is taken for the user's.
+What no guard in the harness's own process can survive: ``os._exit``, a crash of native code
+(SIGSEGV, ``abort``), and a call or a constructor that never returns; ``isolate: true`` (a
+worker process, :mod:`~modemverify.adapters.isolated`) turns those into error verdicts too.
+
+Arrays from a device are judged before anything converts them: dimensions, dtype, and a size
+cap derived from the input (:func:`max_output`), so a device returning 2e8 samples for a few
+bits costs no copy; then they are made contiguous (a strided view is a correct answer).
 """
 
 from __future__ import annotations
 
+import signal
+import threading
 import time
+import traceback
 from abc import ABC, abstractmethod
-from typing import ClassVar
+from pathlib import Path
+from typing import Callable, ClassVar
 
 import numpy as np
 
-from ..errors import AdapterError, DeviceOutputError
+from ..errors import AdapterError, ConfigError, DeviceOutputError
 from ..options import Opt
 from ..spec import DeviceSpec
 
-__all__ = ["CAPABILITIES", "ModemAdapter", "summarise_bits", "summarise_samples", "GuardedDevice"]
+__all__ = [
+    "CAPABILITIES", "ModemAdapter", "summarise_bits", "summarise_samples", "describe_raise",
+    "max_output", "OUTPUT_SLACK", "OUTPUT_SLACK_SYMBOLS", "GuardedDevice",
+]
 
 CAPABILITIES = ("modulate", "demodulate", "demodulate_soft")
 
@@ -127,15 +151,163 @@ class _Summary:
         return format(str(self), spec)
 
 
-def _as_1d(out, call: str, summary) -> np.ndarray:
+#: a device's output may be this many times the expected count (plus OUTPUT_SLACK_SYMBOLS
+#: symbols) before it is refused unread; the length checks judge anything below that
+OUTPUT_SLACK = 16
+OUTPUT_SLACK_SYMBOLS = 64
+
+
+def max_output(call: str, n_in: int, k: int, sps: int, tail: int = 0) -> int:
+    """The most items (samples, bits or LLRs) an answer to ``call`` on ``n_in`` input items
+    (bits for ``modulate``, samples otherwise) may hold before it is refused unread.
+
+    The one cap for every way of reaching a device: the guard, the isolated worker's reply and
+    the process adapter's frames all use it.
+
+    >>> max_output("modulate", 8, 2, 1), max_output("demodulate", 4, 2, 1)
+    (1088, 2176)
+    """
+    if call == "modulate":
+        return OUTPUT_SLACK * (n_in // k + OUTPUT_SLACK_SYMBOLS) * sps + max(tail, 0)
+    return OUTPUT_SLACK * (n_in // sps + OUTPUT_SLACK_SYMBOLS) * k
+
+
+def _location(exc: BaseException) -> str:
+    tb = traceback.extract_tb(exc.__traceback__)
+    return f" (at {Path(tb[-1].filename).name} line {tb[-1].lineno})" if tb else ""
+
+
+def describe_raise(exc: BaseException) -> str:
+    """What a device did by raising ``exc``, for an AdapterError's message.
+
+    >>> describe_raise(ValueError("bad"))
+    'raised ValueError: bad'
+    >>> describe_raise(SystemExit(4))
+    'raised SystemExit(4): a device must not end the harness (sys.exit in the device)'
+    """
+    if isinstance(exc, Exception):
+        return f"raised {type(exc).__name__}: {exc}"
+    if isinstance(exc, SystemExit):
+        text = (f"raised SystemExit({exc.code!r}): a device must not end the harness "
+                f"(sys.exit in the device)")
+    elif isinstance(exc, KeyboardInterrupt):
+        text = ("raised KeyboardInterrupt itself (no interrupt signal reached the harness); "
+                "a device must not interrupt the run")
+    else:
+        text = f"raised {type(exc).__name__}: {exc} (a BaseException, not an Exception)"
+    return text + _location(exc)
+
+
+class _InterruptWatch:
+    """Counts SIGINT and SIGTERM reaching the harness while a device is open, so the guard
+    can tell the user's interrupt from a ``KeyboardInterrupt`` a device raises itself.
+
+    The first holder wraps the Python handlers in place (each wrapper counts, then calls the
+    handler it wraps, so behaviour is unchanged); the last one puts them back, unless someone
+    replaced them meanwhile.
+    """
+
+    SIGNALS = tuple(getattr(signal, n) for n in ("SIGINT", "SIGTERM") if hasattr(signal, n))
+
+    def __init__(self):
+        self.count = 0
+        self.holders = 0
+        self.wrapped: dict = {}
+
+    def hold(self) -> None:
+        if self.holders == 0 and threading.current_thread() is threading.main_thread():
+            for sig in self.SIGNALS:
+                previous = signal.getsignal(sig)
+                if callable(previous) and not getattr(previous, "_modemverify_watch", False):
+                    wrapper = self._wrapper(previous)
+                    try:
+                        signal.signal(sig, wrapper)
+                    except (ValueError, OSError):
+                        continue
+                    self.wrapped[sig] = (wrapper, previous)
+        self.holders += 1
+
+    def release(self) -> None:
+        self.holders = max(self.holders - 1, 0)
+        if self.holders or threading.current_thread() is not threading.main_thread():
+            return
+        for sig, (wrapper, previous) in self.wrapped.items():
+            if signal.getsignal(sig) is wrapper:
+                signal.signal(sig, previous)
+        self.wrapped.clear()
+
+    def _wrapper(self, previous):
+        def counted(signum, frame):
+            self.count += 1
+            return previous(signum, frame)
+
+        counted._modemverify_watch = True
+        return counted
+
+    def from_signal(self, mark: int) -> bool:
+        """True unless a KeyboardInterrupt seen now is known to come from the device itself:
+        no counted signal since ``mark`` and no handler that could raise one unseen."""
+        if threading.current_thread() is not threading.main_thread():
+            return False  # signal handlers run in the main thread only
+        if self.count != mark:
+            return True
+        for sig in self.SIGNALS:
+            handler = signal.getsignal(sig)
+            if callable(handler) and not getattr(handler, "_modemverify_watch", False):
+                return True
+        return False
+
+
+_INTERRUPTS = _InterruptWatch()
+
+
+def _guarded(call: str, summary, fn, *args, opening: bool = False):
+    """``fn(*args)``; whatever it raises becomes AdapterError naming ``call``, except the
+    user's interrupt (and, when ``opening``, a ConfigError: the device file is wrong)."""
+    __tracebackhide__ = True
+    mark = _INTERRUPTS.count
     try:
-        arr = np.asarray(out)
-    except Exception as exc:  # a device returning an unconvertible object
-        raise DeviceOutputError(f"returned {type(out).__name__}, not an array ({exc})",
-                                call=call, input_summary=str(summary)) from None
+        return fn(*args)
+    except AdapterError:
+        raise
+    except KeyboardInterrupt as exc:
+        if _INTERRUPTS.from_signal(mark):
+            raise
+        error = exc
+    except BaseException as exc:
+        if opening and isinstance(exc, ConfigError):
+            raise
+        error = exc
+    raise AdapterError(describe_raise(error), call=call,
+                       input_summary=None if summary is None else str(summary)) from error
+
+
+def _as_1d(out, call: str, summary, kinds: str, wanted: str, cap: int, unit: str,
+           for_what) -> np.ndarray:
+    """The device's answer as a 1-D array, judged before any conversion: dimensions, dtype
+    (``kinds``) and the size cap; a list longer than the cap is refused before numpy sees it."""
+    def too_many(size):
+        return DeviceOutputError(f"returned {size} {unit} {for_what()}; more than {cap} are "
+                                 f"refused unread", call=call, input_summary=str(summary))
+
+    if isinstance(out, np.ndarray):
+        arr = out
+    else:
+        if isinstance(out, (list, tuple)) and len(out) > cap:
+            raise too_many(len(out))
+        try:
+            arr = np.asarray(out)
+        except Exception as exc:  # a device returning an unconvertible object
+            raise DeviceOutputError(f"returned {type(out).__name__}, not an array ({exc})",
+                                    call=call, input_summary=str(summary)) from None
     if arr.ndim != 1:
         raise DeviceOutputError(f"returned an array of shape {arr.shape}; expected 1-D",
                                 call=call, input_summary=str(summary))
+    if arr.dtype.kind not in kinds:
+        raise DeviceOutputError(f"returned dtype {arr.dtype}; expected {wanted}",
+                                call=call, input_summary=str(summary))
+    if arr.size > cap:
+        raise too_many(arr.size)
     return arr
 
 
@@ -148,6 +320,9 @@ class GuardedDevice:
     bits_per_symbol, samples_per_symbol : int
     name : str
         Device name, for messages.
+
+    Use :meth:`opening` to open the device under the same guard, and :meth:`close` once at
+    the end (it also puts back the signal handlers the guard wrapped).
     """
 
     def __init__(self, adapter: ModemAdapter, bits_per_symbol: int, samples_per_symbol: int = 1,
@@ -164,6 +339,25 @@ class GuardedDevice:
         self.replays_only = bool(getattr(adapter, "replays_only", False))
         self.device_time_s = 0.0
         self.calls = 0
+        _INTERRUPTS.hold()
+        self._holding = True
+
+    @classmethod
+    def opening(cls, opener: Callable[[], ModemAdapter], bits_per_symbol: int,
+                samples_per_symbol: int = 1, name: str = "device", **options) -> "GuardedDevice":
+        """Open a device with ``opener()`` (importing and constructing it) under the guard.
+
+        A ConfigError passes unchanged (the device file is wrong); anything else the opening
+        raises (an exception, ``sys.exit``, a ``BaseException``, a ``KeyboardInterrupt`` that
+        no signal caused) becomes an AdapterError with ``call="open"``.
+        """
+        __tracebackhide__ = True
+        _INTERRUPTS.hold()  # held across the opening, so an interrupt there is told apart
+        try:
+            adapter = _guarded("open", None, opener, opening=True)
+            return cls(adapter, bits_per_symbol, samples_per_symbol, name, **options)
+        finally:
+            _INTERRUPTS.release()
 
     def has(self, capability: str) -> bool:
         return capability in self.capabilities
@@ -176,12 +370,7 @@ class GuardedDevice:
         __tracebackhide__ = True
         t0 = time.perf_counter()
         try:
-            return fn(*args)
-        except AdapterError:
-            raise
-        except Exception as exc:
-            raise AdapterError(f"raised {type(exc).__name__}: {exc}", call=call,
-                               input_summary=str(summary)) from exc
+            return _guarded(call, summary, fn, *args)
         finally:
             self.device_time_s += time.perf_counter() - t0
             self.calls += 1
@@ -191,14 +380,14 @@ class GuardedDevice:
         """Call ``modulate``; return complex128 samples or raise AdapterError."""
         bits = np.ascontiguousarray(bits, dtype=np.uint8)
         summary = _Summary(summarise_bits, bits)
+        n = bits.size // self.k
+        cap = max_output("modulate", bits.size, self.k, self.sps,
+                         max(self.tail_samples or 0, self.input_tail))
         out = _as_1d(self._call("modulate", summary, self.adapter.modulate, bits.copy()),
-                     "modulate", summary)
-        if out.dtype.kind not in "biufc":
-            raise DeviceOutputError(f"returned dtype {out.dtype}; expected complex samples",
-                                    call="modulate", input_summary=str(summary))
-        out = out.astype(np.complex128, copy=False)
+                     "modulate", summary, "c", "complex samples", cap, "samples",
+                     lambda: f"for {n} symbols")
+        out = np.ascontiguousarray(out, dtype=np.complex128)
         if check_length:
-            n = bits.size // self.k
             if self.tail_samples is not None:
                 expected = n * self.sps + self.tail_samples
                 if out.size != expected:
@@ -228,17 +417,17 @@ class GuardedDevice:
         """
         samples = np.ascontiguousarray(samples, dtype=np.complex128)
         summary = _Summary(summarise_samples, samples)
+        expected = n_bits if n_bits is not None else self.bits_for(samples.size)
+        cap = max(max_output("demodulate", samples.size, self.k, self.sps), expected)
         out = _as_1d(self._call("demodulate", summary, self.adapter.demodulate, samples),
-                     "demodulate", summary)
-        if out.dtype.kind not in "biuf":
-            raise DeviceOutputError(f"returned dtype {out.dtype}; expected bits 0/1",
-                                    call="demodulate", input_summary=str(summary))
+                     "demodulate", summary, "biuf", "bits 0/1", cap, "bits",
+                     lambda: f"for {samples.size} samples")
+        out = np.ascontiguousarray(out)
         if out.size and (out.max() > 1 if out.dtype.kind in "bu" else
                          not np.all((out == 0) | (out == 1))):
             bad = out[~((out == 0) | (out == 1))][0]
             raise DeviceOutputError(f"returned the value {bad!r}; expected bits 0/1",
                                     call="demodulate", input_summary=str(summary))
-        expected = n_bits if n_bits is not None else self.bits_for(samples.size)
         if check_length and out.size != expected:
             raise DeviceOutputError(f"returned {out.size} bits; expected {expected}",
                                     call="demodulate", input_summary=str(summary))
@@ -249,17 +438,16 @@ class GuardedDevice:
         """Call ``demodulate_soft``; return float64 LLRs or raise AdapterError."""
         samples = np.ascontiguousarray(samples, dtype=np.complex128)
         summary = _Summary(summarise_samples, samples, f", noise_var={noise_var:.4g}")
+        expected = n_bits if n_bits is not None else self.bits_for(samples.size)
+        cap = max(max_output("demodulate_soft", samples.size, self.k, self.sps), expected)
         out = _as_1d(self._call("demodulate_soft", summary, self.adapter.demodulate_soft,
                                 samples.copy(), float(noise_var)),
-                     "demodulate_soft", summary)
-        if out.dtype.kind not in "iuf":
-            raise DeviceOutputError(f"returned dtype {out.dtype}; expected real LLRs",
-                                    call="demodulate_soft", input_summary=str(summary))
-        expected = n_bits if n_bits is not None else self.bits_for(samples.size)
+                     "demodulate_soft", summary, "iuf", "real LLRs", cap, "LLRs",
+                     lambda: f"for {samples.size} samples")
         if out.size != expected:
             raise DeviceOutputError(f"returned {out.size} LLRs; expected {expected}",
                                     call="demodulate_soft", input_summary=str(summary))
-        out = out.astype(np.float64, copy=False)
+        out = np.ascontiguousarray(out, dtype=np.float64)
         if not np.all(np.isfinite(out)):
             bad = int(np.argmin(np.isfinite(out)))
             raise DeviceOutputError(f"returned a non-finite LLR ({out[bad]}) at index {bad}",
@@ -267,7 +455,13 @@ class GuardedDevice:
         return out
 
     def close(self) -> None:
+        """Close the device; what its ``close`` raises is dropped (the verdicts are kept),
+        except the user's interrupt."""
         try:
-            self.adapter.close()
-        except Exception:  # closing a broken device must not lose the verdicts
+            _guarded("close", None, self.adapter.close)
+        except AdapterError:  # closing a broken device must not lose the verdicts
             pass
+        finally:
+            if self._holding:
+                self._holding = False
+                _INTERRUPTS.release()

@@ -21,6 +21,19 @@ numpy and modemverify once; a restart is a fork, tens of milliseconds), else ``s
 A device that times out on ``MAX_CONSECUTIVE_TIMEOUTS`` calls in a row is taken to be hung: later
 calls in the run fail at once with DeviceTimeout saying so, instead of each waiting
 ``timeout_s`` (hypothesis searches would otherwise wait minutes on a device that never answers).
+
+The worker
+
+- runs in its own process group, and whenever the harness is done with a worker (a timeout, a
+  crash, the end of the run) it kills that whole group, so processes the device started go
+  with it (a process that leaves the group with ``setsid`` is beyond reach);
+- imports with the harness's path, the working folder moved to its end (a ``random.py`` there
+  cannot shadow the standard library); the fork server starts from the standard library's
+  folder for the same reason, and each worker then works in the harness's working folder;
+- reads nothing from the harness's stdin (``/dev/null``) and writes into the capture file;
+- refuses to send an answer larger than the cap the harness gives with each call
+  (:func:`~modemverify.adapters.base.max_output`); the harness checks the announced size
+  again before it allocates anything.
 """
 
 from __future__ import annotations
@@ -32,13 +45,14 @@ import sys
 import tempfile
 import traceback
 import weakref
+from contextlib import contextmanager
 from pathlib import Path
 
 import numpy as np
 
 from .. import errors
-from ..errors import AdapterError, ConfigError, DeviceCrashed, DeviceTimeout
-from .base import ModemAdapter, summarise_bits, summarise_samples
+from ..errors import AdapterError, ConfigError, DeviceCrashed, DeviceOutputError, DeviceTimeout
+from .base import ModemAdapter, describe_raise, max_output, summarise_bits, summarise_samples
 from .registry import get_adapter_class
 
 #: opening a device (starting the worker, the adapter's from_spec) may take this long at least
@@ -163,6 +177,54 @@ def _context():
     return mp.get_context("spawn")
 
 
+def worker_path(path: list[str], cwd: str) -> list[str]:
+    """The import path a worker gets: ``path`` with the working folder (``''`` or ``cwd``)
+    moved to the end, so a file there (``random.py``) cannot shadow the standard library or an
+    installed package, while a package found only there is still found.
+
+    >>> worker_path(["", "/usr/lib/python3.11", "/work"], "/work")
+    ['/usr/lib/python3.11', '/work']
+    """
+    here = os.path.realpath(cwd)
+    kept = [p for p in path if p != "" and os.path.realpath(p) != here]
+    return kept + [here] if len(kept) < len(path) else kept
+
+
+#: where a new interpreter of the worker machinery starts: ``python -c`` puts its working
+#: folder first on its path, and the standard library's own folder holds only itself
+_SAFE_START_DIR = os.path.dirname(os.__file__)
+
+
+@contextmanager
+def _safe_launch():
+    """While the fork server (or a spawned worker) starts: the harness's working folder is the
+    standard library's and its sys.path the workers', so the new interpreter imports nothing
+    from the user's folder (it inherits both)."""
+    try:
+        cwd = os.getcwd()
+    except OSError:  # the working folder was removed: nothing there to shadow anything
+        yield
+        return
+    saved = sys.path[:]
+    sys.path[:] = worker_path(saved, cwd)
+    os.chdir(_SAFE_START_DIR)
+    try:
+        yield
+    finally:
+        os.chdir(cwd)
+        sys.path[:] = saved
+
+
+def _kill_group(pid: int | None) -> None:
+    """SIGKILL the process group a worker leads (it and what it started); best effort."""
+    if pid is None or not hasattr(os, "killpg"):
+        return
+    try:
+        os.killpg(pid, signal.SIGKILL)
+    except (ProcessLookupError, PermissionError, OSError):
+        pass
+
+
 class _Capture:
     """A file the worker's stdout and stderr go to; read back to quote them in errors."""
 
@@ -207,6 +269,9 @@ class IsolatedAdapter(ModemAdapter):
     def __init__(self, spec):
         self.spec = spec
         self.timeout_s = float(spec.timeout_s)
+        scheme = spec.scheme
+        self.k, self.sps = scheme.bits_per_symbol, scheme.samples_per_symbol
+        self.tail = max(scheme.tail_samples or 0, scheme.pulse.tail)  # as the guard's cap
         self.capabilities = frozenset()
         self.restarts = 0
         self._proc = None
@@ -233,11 +298,21 @@ class IsolatedAdapter(ModemAdapter):
         ctx = _context()
         parent, child = ctx.Pipe(duplex=True)
         self._capture.start_call()
+        try:
+            cwd = os.getcwd()
+        except OSError:
+            cwd = None
         proc = ctx.Process(target=_worker_main,
-                           args=(child, self.spec, self._capture.path, list(sys.path),
+                           args=(child, self.spec, self._capture.path,
+                                 worker_path(sys.path, cwd or "/"), cwd,
                                  os.environ.get("MODEMVERIFY_NO_PLUGINS")),
                            name=f"modemverify-worker[{self.spec.name}]", daemon=True)
-        proc.start()
+        with _safe_launch():
+            if ctx.get_start_method() == "forkserver":
+                from multiprocessing import forkserver
+
+                forkserver.ensure_running()  # a no-op once the server runs
+            proc.start()
         child.close()
         _tune(parent)
         self._proc, self._conn = proc, parent
@@ -259,12 +334,14 @@ class IsolatedAdapter(ModemAdapter):
         raise _rebuild_open_error(msg, self._capture.since_mark())
 
     def _kill(self) -> None:
+        """Stop the worker and every process in its group (what the device started)."""
         proc, conn = self._proc, self._conn
         self._proc = self._conn = None
         self._busy = False
         if conn is not None:
             conn.close()
         if proc is not None:
+            _kill_group(proc.pid)  # the worker leads its group (set first thing in the worker)
             if proc.is_alive():
                 proc.kill()
             proc.join(5)
@@ -300,10 +377,11 @@ class IsolatedAdapter(ModemAdapter):
         self._ensure_worker(call, describe)
         conn = self._conn
         arr = np.ascontiguousarray(arr)
+        cap = max_output(call, arr.size, self.k, self.sps, self.tail)
         self._capture.start_call()
         self._busy = True
         try:
-            conn.send(("call", call, arr.dtype.str, arr.shape, noise_var))
+            conn.send(("call", call, arr.dtype.str, arr.shape, noise_var, cap))
             _send_array(conn, arr)
             ready = conn.poll(self.timeout_s)
         except (BrokenPipeError, ConnectionResetError, EOFError, OSError):
@@ -319,6 +397,12 @@ class IsolatedAdapter(ModemAdapter):
             head = conn.recv()
             if head[0] == "array":
                 _, dtype, shape = head
+                size = int(np.prod(shape, dtype=np.int64)) if len(shape) else 1
+                if size > cap or size * np.dtype(dtype).itemsize > _MAX_ITEM * cap:
+                    self._kill()  # the worker checks first: this is never allocated
+                    raise DeviceOutputError(f"the worker announced {size} items of {dtype}; "
+                                            f"more than {cap} are refused unread", call=call,
+                                            input_summary=describe())
                 out = np.empty(shape, dtype=np.dtype(dtype))
                 _recv_array(conn, out)
         except (EOFError, OSError):
@@ -332,13 +416,16 @@ class IsolatedAdapter(ModemAdapter):
         kind = head[0]
         if kind == "array":
             return out
-        if kind == "object-array":
-            # an object array (None, a list of objects): give the guard one of the same shape
-            return np.empty(head[1], dtype=object)
+        if kind == "shape-only":
+            # an object array (None, a list of objects) or one above the cap: give the guard
+            # one of the same dtype and shape, which costs no memory (it is judged unread)
+            _, dtype, shape = head
+            dtype = np.dtype(dtype)
+            return np.broadcast_to(np.zeros((), dtype if dtype.itemsize <= _MAX_ITEM else object),
+                                   shape)
         if kind == "raised":
-            _, exc_type, message = head
-            raise AdapterError(f"raised {exc_type}: {message}", call=call,
-                               input_summary=describe(), stderr=self._capture.since_mark())
+            raise AdapterError(head[1], call=call, input_summary=describe(),
+                               stderr=self._capture.since_mark())
         if kind == "adapter_error":
             _, cls_name, message, e_call, e_input, e_stderr = head
             cls = getattr(errors, cls_name, AdapterError)
@@ -381,8 +468,7 @@ def _rebuild_open_error(msg, stderr: str | None) -> Exception:
         cls = getattr(errors, cls_name, AdapterError)
         return cls(message, call=call or "open", input_summary=summary,
                    stderr=e_stderr or stderr)
-    _, _, exc_type, message = msg
-    return AdapterError(f"raised {exc_type}: {message}", call="open", stderr=stderr)
+    return AdapterError(msg[2], call="open", stderr=stderr)
 
 
 # -- the worker side ------------------------------------------------------------------------
@@ -399,18 +485,33 @@ def _die_with_parent() -> None:
         pass
 
 
-def _worker_main(conn, spec, capture_path: str, sys_path: list, no_plugins) -> None:
-    # Ctrl-C reaches the whole process group; the harness, not the worker, decides what stops
+def _worker_main(conn, spec, capture_path: str, sys_path: list, cwd: str | None,
+                 no_plugins) -> None:
+    # its own process group: the harness kills the worker with whatever the device starts
+    try:
+        os.setpgid(0, 0)
+    except (AttributeError, OSError):
+        pass
+    # Ctrl-C is the harness's to handle; the harness, not the worker, decides what stops
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     _die_with_parent()
     fd = os.open(capture_path, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o600)
     os.dup2(fd, 1)
     os.dup2(fd, 2)
     os.close(fd)
+    fd = os.open(os.devnull, os.O_RDONLY)
+    os.dup2(fd, 0)
+    os.close(fd)
     _tune(conn)
-    # the fork server was started earlier: take the harness's current import path and plugin
-    # setting (a plugin installed into a folder on sys.path at run time must be found here too)
+    # the fork server was started earlier: take the harness's current import path (its working
+    # folder last) and plugin setting (a plugin installed into a folder on sys.path at run time
+    # must be found here too), and its working folder
     sys.path[:] = sys_path
+    if cwd is not None:
+        try:
+            os.chdir(cwd)
+        except OSError:
+            pass
     if no_plugins is None:
         os.environ.pop("MODEMVERIFY_NO_PLUGINS", None)
     else:
@@ -424,9 +525,11 @@ def _worker_main(conn, spec, capture_path: str, sys_path: list, no_plugins) -> N
         conn.send(("open_error", "adapter", type(exc).__name__, exc.raw_message, exc.call,
                    exc.input_summary, exc.stderr))
         return
-    except Exception as exc:
+    except SystemExit:  # the worker ends with the device's status: reported as its death
+        raise
+    except BaseException as exc:
         traceback.print_exc()
-        conn.send(("open_error", "raised", type(exc).__name__, str(exc)))
+        conn.send(("open_error", "raised", describe_raise(exc)))
         return
     conn.send(("ready", sorted(adapter.capabilities)))
     while True:
@@ -437,10 +540,10 @@ def _worker_main(conn, spec, capture_path: str, sys_path: list, no_plugins) -> N
         if msg[0] == "close":
             try:
                 adapter.close()
-            except Exception:  # closing must not turn a finished run into a crash report
+            except BaseException:  # closing must not turn a finished run into a crash report
                 traceback.print_exc()
             break
-        _, call, dtype, shape, noise_var = msg
+        _, call, dtype, shape, noise_var, cap = msg
         arr = np.empty(shape, dtype=np.dtype(dtype))
         _recv_array(conn, arr)
         try:
@@ -449,26 +552,47 @@ def _worker_main(conn, spec, capture_path: str, sys_path: list, no_plugins) -> N
         except AdapterError as exc:
             reply = ("adapter_error", type(exc).__name__, exc.raw_message, exc.call,
                      exc.input_summary, exc.stderr)
-        except Exception as exc:
+        except SystemExit:  # the worker ends with the device's status: reported as its death
+            raise
+        except BaseException as exc:
             traceback.print_exc()
-            reply = ("raised", type(exc).__name__, str(exc))
+            reply = ("raised", describe_raise(exc))
         else:
-            _send_result(conn, out)
+            _send_result(conn, out, call, cap)
             reply = None
         finally:
             sys.stdout.flush()
             sys.stderr.flush()
         if reply is not None:
             conn.send(reply)
+    sys.stdout.flush()
+    sys.stderr.flush()
+    # the end of the run: whatever the device started in this group goes with the worker
+    if hasattr(os, "killpg") and os.getpgrp() == os.getpid():
+        os.killpg(0, signal.SIGKILL)
 
 
-def _send_result(conn, out) -> None:
+#: bytes per item of the widest answer a device gives (complex128)
+_MAX_ITEM = 16
+
+
+def _send_result(conn, out, call: str, cap: int) -> None:
+    """Send the device's answer: an array's bytes, or only its dtype and shape when the guard
+    judges it from those alone (objects, or more than ``cap`` items: never converted, never
+    sent)."""
+    if isinstance(out, (list, tuple)) and len(out) > cap:
+        # as in process, refused by its length: any dtype the guard accepts for the call
+        conn.send(("shape-only", "c16" if call == "modulate" else "f8", (len(out),)))
+        return
     try:
         arr = np.asarray(out)
     except Exception:
         arr = np.empty((), dtype=object)
     if arr.dtype.hasobject or arr.dtype.kind == "V":
-        conn.send(("object-array", arr.shape))
+        conn.send(("shape-only", "O", arr.shape))
+        return
+    if arr.size > cap or arr.nbytes > _MAX_ITEM * cap:
+        conn.send(("shape-only", arr.dtype.str, arr.shape))
         return
     arr = np.ascontiguousarray(arr)
     conn.send(("array", arr.dtype.str, arr.shape))
@@ -476,6 +600,6 @@ def _send_result(conn, out) -> None:
 
 
 __all__ = [
-    "IsolatedAdapter", "open_adapter", "describe_exit", "HangGuard", "OPEN_TIMEOUT_S",
-    "MAX_CONSECUTIVE_TIMEOUTS", "STDERR_QUOTE", "CHUNK",
+    "IsolatedAdapter", "open_adapter", "describe_exit", "worker_path", "HangGuard",
+    "OPEN_TIMEOUT_S", "MAX_CONSECUTIVE_TIMEOUTS", "STDERR_QUOTE", "CHUNK",
 ]

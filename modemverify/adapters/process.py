@@ -9,20 +9,28 @@ format), then one request and one reply at a time. The harness
 - reports the process's death while it handles a call as DeviceCrashed with its exit status or
   signal, and a malformed reply as a protocol error;
 - quotes what the process wrote to stderr during the call in every such error;
-- starts the process again for the next call, so the remaining checks still run.
+- starts the process again for the next call, so the remaining checks still run;
+- starts it in a process group of its own and, whenever it is done with it (a timeout, a
+  crash, a protocol error, the end of the run), kills that whole group, so what the device
+  started (``/bin/sh -c`` and its children, helpers) ends with it.
 
 Device-file keys: ``command`` (the argument list; a program given as a path is relative to the
 device file, ``{python}`` as the program means the interpreter running modemverify) and ``env``
-(variables added to the environment).
+(variables added to the environment). ``params`` travel in the hello as JSON, so they must be
+plain JSON data (text, finite numbers, true/false, null, lists, mappings with text keys) of at
+most ``MAX_PARAM_VALUES`` values and ``MAX_PARAMS_BYTES`` bytes encoded (a YAML alias repeated
+a billion times is refused when the file is loaded, not expanded).
 """
 
 from __future__ import annotations
 
 import io
 import json
+import math
 import os
 import selectors
 import shutil
+import signal
 import struct
 import subprocess
 import sys
@@ -41,16 +49,23 @@ from ..errors import (
 )
 from ..options import Opt
 from . import _wire
-from .base import ModemAdapter, summarise_bits, summarise_samples
+from .base import ModemAdapter, max_output, summarise_bits, summarise_samples
 from .isolated import OPEN_TIMEOUT_S, STDERR_QUOTE, HangGuard, describe_exit
 
-__all__ = ["ADAPTER", "PYTHON_PLACEHOLDER", "STDERR_KEEP", "CHUNK", "ProcessAdapter"]
+__all__ = [
+    "ADAPTER", "PYTHON_PLACEHOLDER", "STDERR_KEEP", "CHUNK", "MAX_PARAM_VALUES",
+    "MAX_PARAMS_BYTES", "ProcessAdapter",
+]
 
 PYTHON_PLACEHOLDER = "{python}"
 #: how much of the process's stderr is kept (the tail)
 STDERR_KEEP = 1 << 16
 #: bytes moved per read or write system call
 CHUNK = 1 << 20
+#: values (every list item, mapping value and key counted, an alias each time it is used) and
+#: encoded bytes ``params`` may hold; the device's hello is held to the same 1 MiB
+MAX_PARAM_VALUES = 100_000
+MAX_PARAMS_BYTES = 1 << 20
 
 
 def _grow_pipe(fd: int) -> None:
@@ -109,10 +124,63 @@ def _env(spec) -> dict[str, str]:
                           file=spec.file, key="env")
     out = {}
     for k, v in env.items():
-        if not isinstance(k, str) or isinstance(v, (dict, list)) or v is None:
+        if not isinstance(k, str) or not k or "=" in k or "\0" in k:
+            raise ConfigError(f"env: {k!r} is not a variable name (text, not empty, without "
+                              f"'=' or NUL)", file=spec.file, key="env")
+        if isinstance(v, (dict, list)) or v is None:
             raise ConfigError(f"env.{k}={v!r}: expected text", file=spec.file, key=f"env.{k}")
-        out[k] = str(v).lower() if isinstance(v, bool) else str(v)
+        text = str(v).lower() if isinstance(v, bool) else str(v)
+        if "\0" in text:
+            raise ConfigError(f"env.{k}={v!r}: a NUL character cannot be in an environment "
+                              f"variable", file=spec.file, key=f"env.{k}")
+        out[k] = text
     return out
+
+
+def _plain_json(value, key: str, file, budget: list) -> None:
+    """Refuse anything in ``params`` that is not plain JSON data, or too much of it."""
+    budget[0] -= 1
+    if budget[0] < 0:
+        raise ConfigError(f"more than {MAX_PARAM_VALUES} values (a YAML alias used over and "
+                          f"over?); the hello carries at most that many", file=file,
+                          key="params")
+    if value is None or isinstance(value, (bool, int, str)):
+        return
+    if isinstance(value, float):
+        if not math.isfinite(value):
+            raise ConfigError(f"{key}={value!r}: JSON has no NaN or infinity", file=file,
+                              key=key)
+        return
+    if isinstance(value, list):
+        for i, item in enumerate(value):
+            _plain_json(item, f"{key}[{i}]", file, budget)
+        return
+    if isinstance(value, dict):
+        for k, item in value.items():
+            if not isinstance(k, str):
+                raise ConfigError(f"{key}: the key {k!r} is {type(k).__name__}; JSON keys are "
+                                  f"text", file=file, key=key)
+            budget[0] -= 1
+            _plain_json(item, f"{key}.{k}", file, budget)
+        return
+    raise ConfigError(f"{key}={value!r}: {type(value).__name__} is not JSON data (expected "
+                      f"text, a number, true/false, null, a list or a mapping)", file=file,
+                      key=key)
+
+
+def _check_params(spec) -> None:
+    """The device file's ``params`` are plain JSON data and their encoding fits the hello
+    (checked before anything encodes them: an alias repeated a billion times is refused after
+    ``MAX_PARAM_VALUES`` visits, never expanded)."""
+    params = spec.params
+    if not isinstance(params, dict):
+        raise ConfigError(f"params={params!r}: expected a mapping", file=spec.file,
+                          key="params")
+    _plain_json(params, "params", spec.file, [MAX_PARAM_VALUES])
+    size = len(json.dumps(params, allow_nan=False).encode("utf-8"))
+    if size > MAX_PARAMS_BYTES:
+        raise ConfigError(f"{size} bytes as JSON; the hello carries at most "
+                          f"{MAX_PARAMS_BYTES}", file=spec.file, key="params")
 
 
 class _Protocol(Exception):
@@ -131,9 +199,12 @@ class _Child:
     """One running device process, with non-blocking pipes."""
 
     def __init__(self, argv, cwd, env):
+        # a process group of its own (a new session before Python 3.11), killed as a group
+        group = {"process_group": 0} if sys.version_info >= (3, 11) else \
+            {"start_new_session": True}
         self.popen = subprocess.Popen(argv, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
                                       stderr=subprocess.PIPE, cwd=cwd, env=env, bufsize=0,
-                                      close_fds=True)
+                                      close_fds=True, **(group if os.name == "posix" else {}))
         self.fd_in = self.popen.stdin.fileno()
         self.fd_out = self.popen.stdout.fileno()
         self.fd_err = self.popen.stderr.fileno()
@@ -168,8 +239,9 @@ class _Child:
         text = bytes(self.stderr[self.stderr_mark:]).decode("utf-8", "replace").strip()
         return text[-STDERR_QUOTE:] if text else None
 
-    def drain_stderr(self, seconds: float) -> None:
-        """Read what the process still writes to stderr, until EOF or ``seconds``."""
+    def drain_stderr(self, seconds: float, *, until_exit: bool = False) -> None:
+        """Read what the process still writes to stderr, until EOF or ``seconds`` (or, with
+        ``until_exit``, until the device has exited: what it started may hold stderr open)."""
         end = time.monotonic() + seconds
         sel = selectors.DefaultSelector()
         try:
@@ -177,9 +249,16 @@ class _Child:
                 sel.register(self.fd_err, selectors.EVENT_READ)
             while not self.stderr_eof:
                 left = end - time.monotonic()
-                if left <= 0 or not sel.select(left):
+                if until_exit:
+                    if self.exited():
+                        break
+                    left = min(left, 0.05)
+                if left <= 0:
                     break
-                self._take_stderr()
+                if sel.select(left):
+                    self._take_stderr()
+                elif not until_exit:
+                    break
         finally:
             sel.close()
 
@@ -264,17 +343,51 @@ class _Child:
                             self._take_stderr()
                             return rtype, payload
 
-    def wait(self, seconds: float) -> int | None:
-        """The exit status, or None if the process is still running after ``seconds``."""
+    def exited(self) -> bool:
+        """Whether the device process has ended. It is not reaped here, so its process group
+        id cannot be reused by another process before :meth:`kill` has used it."""
+        if self.popen.returncode is not None:
+            return True
+        if not hasattr(os, "waitid"):
+            return self.popen.poll() is not None
         try:
-            return self.popen.wait(seconds)
+            return os.waitid(os.P_PID, self.popen.pid,
+                             os.WEXITED | os.WNOHANG | os.WNOWAIT) is not None
+        except ChildProcessError:
+            return True
+
+    def wait(self, seconds: float) -> bool:
+        """Whether the process ended within ``seconds`` (not reaped: see :meth:`exited`)."""
+        end = time.monotonic() + seconds
+        while not self.exited():
+            if time.monotonic() >= end:
+                return False
+            time.sleep(0.005)
+        return True
+
+    def kill(self) -> int | None:
+        """SIGKILL the device's process group (the device and whatever it started) and reap
+        the device; returns its exit status (its own, if it had ended already)."""
+        if os.name == "posix":
+            try:
+                os.killpg(self.popen.pid, signal.SIGKILL)
+            except OSError:  # the group is gone already
+                pass
+        if self.popen.poll() is None:
+            self.popen.kill()
+        try:
+            return self.popen.wait(5)
         except subprocess.TimeoutExpired:
             return None
 
-    def kill(self) -> None:
-        if self.popen.poll() is None:
-            self.popen.kill()
+    def end_of_life(self) -> int | None:
+        """The device died (its stdout closed, or its stdin): collect what it still writes to
+        stderr and its exit status, then kill what it left running in its group."""
+        self.drain_stderr(2.0, until_exit=True)
         self.wait(5)
+        code = self.kill()
+        self.drain_stderr(0.5)
+        return code
 
     def close_pipes(self) -> None:
         for f in (self.popen.stdin, self.popen.stdout, self.popen.stderr):
@@ -303,6 +416,9 @@ class ProcessAdapter(ModemAdapter):
         self.spec = spec
         self.argv = _argv(spec)
         self.env = {**os.environ, **_env(spec)}
+        _check_params(spec)  # plain JSON data, bounded (validate_spec checked it already)
+        scheme = spec.scheme
+        self.tail = max(scheme.tail_samples or 0, scheme.pulse.tail)  # as the guard's cap
         self.cwd = str(spec.base_dir)
         self.timeout_s = float(spec.timeout_s)
         self.k = spec.scheme.bits_per_symbol
@@ -320,6 +436,7 @@ class ProcessAdapter(ModemAdapter):
                               "own process", file=spec.file, key="isolate")
         _argv(spec)
         _env(spec)
+        _check_params(spec)
 
     @classmethod
     def from_spec(cls, spec) -> "ProcessAdapter":
@@ -338,11 +455,12 @@ class ProcessAdapter(ModemAdapter):
         scheme = self.spec.scheme
         hello = {"protocol": _wire.PROTOCOL_VERSION, "modulation": scheme.modulation,
                  "convention": scheme.convention, "bits_per_symbol": self.k,
-                 "samples_per_symbol": self.sps, "params": self.spec.params}
+                 "samples_per_symbol": self.sps, "params": self.spec.params}  # checked, bounded
         timeout = max(self.timeout_s, OPEN_TIMEOUT_S)
         what = "start" if self.starts == 1 else "restart"
         try:
-            rtype, payload = child.exchange(_wire.HELLO, [json.dumps(hello).encode("utf-8")],
+            rtype, payload = child.exchange(_wire.HELLO,
+                                            [json.dumps(hello, allow_nan=False).encode("utf-8")],
                                             time.monotonic() + timeout, 1 << 20)
             if rtype != _wire.HELLO:
                 raise _Protocol(f"answered the hello with a {_wire.FRAME_NAMES[rtype]} frame")
@@ -355,8 +473,7 @@ class ProcessAdapter(ModemAdapter):
                                 f"{what}", call=call, input_summary=summary,
                                 stderr=child.stderr_since_mark()) from None
         except _Died:
-            child.drain_stderr(2.0)
-            code = child.wait(5)
+            code = child.end_of_life()
             child.close_pipes()
             raise DeviceCrashed(f"the device process {describe_exit(code)} during the "
                                 f"handshake of its {what}", call=call, input_summary=summary,
@@ -367,6 +484,10 @@ class ProcessAdapter(ModemAdapter):
             child.close_pipes()
             raise AdapterError(f"protocol error in the handshake: {exc}", call=call,
                                input_summary=summary, stderr=child.stderr_since_mark()) from None
+        except BaseException:  # Ctrl-C during the handshake: the device goes with the run
+            child.kill()
+            child.close_pipes()
+            raise
         if self.capabilities and frozenset(info["capabilities"]) != self.capabilities:
             self._drop(child)
             raise AdapterError(f"the restarted device announced capabilities "
@@ -387,7 +508,7 @@ class ProcessAdapter(ModemAdapter):
         """One request; ``describe()`` summarises the input for an error message."""
         __tracebackhide__ = True
         self._guard.check(call, describe)
-        if self._child is None or self._child.popen.poll() is not None:
+        if self._child is None or self._child.exited():
             if self._child is not None:
                 self._drop(self._child)
             try:
@@ -410,8 +531,7 @@ class ProcessAdapter(ModemAdapter):
                                 call=call, input_summary=describe(),
                                 stderr=child.stderr_since_mark()) from None
         except _Died:
-            child.drain_stderr(2.0)
-            code = child.wait(5)
+            code = child.end_of_life()
             self._drop(child)
             raise DeviceCrashed(f"the device process {describe_exit(code)} while handling the "
                                 f"call (the next call starts it again)", call=call,
@@ -460,7 +580,7 @@ class ProcessAdapter(ModemAdapter):
         return self._samples(payload, "modulate", describe)
 
     def demodulate(self, samples):
-        max_reply = 16 * (len(samples) // self.sps + 64) * self.k
+        max_reply = max_output("demodulate", len(samples), self.k, self.sps)
         payload = self._call("demodulate", [self._encode(samples)],
                              lambda: summarise_samples(samples), max_reply)
         return np.frombuffer(payload, dtype=np.uint8)
@@ -469,7 +589,7 @@ class ProcessAdapter(ModemAdapter):
         def describe():
             return summarise_samples(samples) + f", noise_var={noise_var:.4g}"
 
-        max_reply = 16 * (len(samples) // self.sps + 64) * self.k * 4
+        max_reply = max_output("demodulate_soft", len(samples), self.k, self.sps) * 4
         payload = self._call("demodulate_soft",
                              [struct.pack("<d", float(noise_var)), self._encode(samples)],
                              describe, max_reply)
@@ -490,7 +610,7 @@ class ProcessAdapter(ModemAdapter):
                 pass
             child.close_pipes()
             child.wait(2)
-        child.kill()
+        child.kill()  # the device's whole group: what it started ends with the run
         child.close_pipes()
 
 

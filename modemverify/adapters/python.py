@@ -10,6 +10,7 @@ from __future__ import annotations
 import hashlib
 import importlib
 import importlib.util
+import inspect
 import sys
 import traceback
 from pathlib import Path
@@ -53,6 +54,9 @@ def load_target(target: str, base_dir: Path, *, file: str | None = None):
             raise ConfigError(f"target={target!r}: importing {path.name} raised "
                               f"{type(exc).__name__}: {exc}{_where(exc)}",
                               file=file, key="target") from None
+        except BaseException:  # sys.exit at import: the device guard reports it (bench.open_bench)
+            sys.modules.pop(mod_name, None)
+            raise
     else:
         try:
             module = importlib.import_module(mod_part)
@@ -89,6 +93,20 @@ def decode_output(out, fmt: str, full_scale: float):
     except ConfigError as exc:
         raise DeviceOutputError(f"returned samples not in sample_format {fmt}: "
                                 f"{exc.raw_message}", call="modulate") from None
+
+
+def _signature_problem(factory, params: dict) -> str | None:
+    """Why ``params`` do not fit ``factory``'s signature: "" when they do, None when it has no
+    signature to ask."""
+    try:
+        signature = inspect.signature(factory)
+    except (TypeError, ValueError):
+        return None
+    try:
+        signature.bind(**params)
+    except TypeError as exc:
+        return str(exc) or "the keyword arguments do not match its signature"
+    return ""
 
 
 def _where(exc: BaseException) -> str:
@@ -133,11 +151,20 @@ class PythonAdapter(ModemAdapter):
         if not callable(factory):
             raise ConfigError(f"target={spec.target!r}: {type(factory).__name__} is not "
                               f"callable", file=spec.file, key="target")
+        # exit 2 only when the params do not fit the signature; a TypeError raised inside the
+        # constructor is the device's (its signature tells the two apart)
+        problem = _signature_problem(factory, spec.params)
+        if problem:
+            raise ConfigError(f"params={spec.params!r}: calling {spec.target} failed: {problem}",
+                              file=spec.file, key="params")
         try:
             device = factory(**spec.params)
         except TypeError as exc:
-            raise ConfigError(f"params={spec.params!r}: calling {spec.target} failed: {exc}",
-                              file=spec.file, key="params") from None
+            if problem is None:  # no signature to ask: blame the params, as before
+                raise ConfigError(f"params={spec.params!r}: calling {spec.target} failed: "
+                                  f"{exc}", file=spec.file, key="params") from None
+            raise AdapterError(f"raised TypeError: {exc}{_where(exc)}",
+                               call=f"{spec.target} (creating the device)") from exc
         except Exception as exc:
             raise AdapterError(f"raised {type(exc).__name__}: {exc}",
                                call=f"{spec.target} (creating the device)") from exc

@@ -34,7 +34,7 @@ from ..errors import AdapterError, ConfigError
 from ..options import Opt
 from ..schemes.conventions import MODULATIONS
 from ..schemes.labels import bits_to_labels
-from ..vectors.recording import read_vector_set
+from ..vectors.recording import load_npy, read_vector_set
 from .base import ModemAdapter, summarise_bits, summarise_samples
 
 __all__ = ["ADAPTER", "SIGMF_SUFFIXES", "SIGMF_BITS_KEY", "SIGMF_DATATYPES", "RecordedAdapter"]
@@ -63,6 +63,10 @@ def _segments_from_sigmf(path: Path, spec, bits_file: Path | None, full_scale: f
     if not isinstance(rec, sigmf.SigMFFile):
         raise ConfigError(f"recording={spec.extra['recording']!r}: a SigMF collection; name "
                           f"one recording", file=file, key="recording")
+    if path.suffix == ".sigmf-meta" and not path.with_suffix(".sigmf-data").is_file():
+        raise ConfigError(f"recording={spec.extra['recording']!r}: its data file "
+                          f"{path.with_suffix('.sigmf-data').name} is missing (a .sigmf-meta "
+                          f"needs the .sigmf-data beside it)", file=file, key="recording")
     dtype = rec.get_global_field("core:datatype")
     if dtype not in SIGMF_DATATYPES:
         raise ConfigError(f"recording={spec.extra['recording']!r}: core:datatype={dtype!r}; "
@@ -72,7 +76,11 @@ def _segments_from_sigmf(path: Path, spec, bits_file: Path | None, full_scale: f
     if channels != 1:
         raise ConfigError(f"recording={spec.extra['recording']!r}: {channels} channels; "
                           f"expected 1", file=file, key="recording")
-    data = np.asarray(rec.read_samples(), dtype=np.complex128).reshape(-1)
+    try:
+        data = np.asarray(rec.read_samples(), dtype=np.complex128).reshape(-1)
+    except Exception as exc:  # sigmf's own errors, a truncated or missing data file
+        raise ConfigError(f"recording={spec.extra['recording']!r}: the samples cannot be read "
+                          f"({type(exc).__name__}: {exc})", file=file, key="recording") from None
     if dtype == "ci16_le":  # sigmf scales integers to [-1, 1): apply the device's full scale
         data = data * full_scale
     k = spec.scheme.bits_per_symbol
@@ -95,8 +103,13 @@ def _segments_from_sigmf(path: Path, spec, bits_file: Path | None, full_scale: f
             raise ConfigError(f"recording={spec.extra['recording']!r}: {key} must be a string "
                               f"of 0 and 1", file=file, key="recording")
         bits = np.frombuffer(text.encode("ascii"), dtype=np.uint8) - ord("0")
-        start = int(ann.get("core:sample_start", 0))
-        count = int(ann.get("core:sample_count", bits.size // k * sps))
+        start = ann.get("core:sample_start", 0)
+        count = ann.get("core:sample_count", bits.size // k * sps)
+        for field, value in (("core:sample_start", start), ("core:sample_count", count)):
+            if not isinstance(value, int) or isinstance(value, bool) or value < 0:
+                raise ConfigError(f"recording={spec.extra['recording']!r}: annotations[{i}]."
+                                  f"{field}={value!r}: expected a whole number >= 0",
+                                  file=file, key="recording")
         if bits.size % k or count != bits.size // k * sps or start + count > data.size:
             raise ConfigError(f"recording={spec.extra['recording']!r}: {key} holds {bits.size} "
                               f"bits for {count} samples from sample {start}; {k} bits per "
@@ -114,9 +127,9 @@ def _segments_from_sigmf(path: Path, spec, bits_file: Path | None, full_scale: f
 def _read_bits(path: Path, spec) -> np.ndarray:
     if path.suffix == ".npy":
         try:
-            bits = np.load(path, allow_pickle=False)
-        except (ValueError, OSError) as exc:
-            raise ConfigError(f"bits={spec.extra['bits']!r}: not a readable .npy file ({exc})",
+            bits = load_npy(path, spec.file, "bits")
+        except ConfigError as exc:
+            raise ConfigError(f"bits={spec.extra['bits']!r}: {exc.raw_message}",
                               file=spec.file, key="bits") from None
     else:
         bits = np.fromfile(path, dtype=np.uint8)

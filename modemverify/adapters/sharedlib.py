@@ -15,8 +15,18 @@ I, Q; ``capacity`` counts complex samples (modulate) or bits / LLRs (demodulate)
 ``sample_format: int16`` the ``iq`` pointers are ``int16_t *`` in Q15: value = integer *
 ``full_scale`` / 32768. The capacity the harness gives is at least twice the expected count, so a
 device that writes too many samples is reported by the ``length`` check rather than overrunning
-its buffer; a device that reports more than its capacity, or writes past it (a guard zone
-after the buffer is checked), is reported as a buffer overrun.
+its buffer; a device that reports more than its capacity is reported as a buffer overrun.
+
+Every buffer the library is given (the input bits or samples and the output) lies between two
+canaries of ``CANARY_BYTES`` each, a fixed pseudo-random byte pattern, checked after every
+call: a write up to that far past the end of a buffer is a buffer overrun, one before its
+start a buffer underrun, reported on the call that made it, naming the buffer and how far the
+damage reaches. What the canaries cannot see: a write farther than ``CANARY_BYTES`` from every
+buffer, writes into the library's own memory (globals, heap, stack) or into the buffer itself
+beyond what the call returns, a write that stores the pattern's own bytes, reads out of
+bounds, and writes after the call has returned (a thread). In process (``isolate: false``)
+such a write may corrupt the harness silently; in a worker (the default) one that reaches
+unmapped memory is a crash (SIGSEGV) reported as such.
 
 Device-file keys: ``library`` (path, relative to the device file), ``symbols`` (``{modulate:
 NAME, demodulate: NAME, demodulate_soft: NAME}``, at least one of the first two),
@@ -46,13 +56,52 @@ from ..errors import AdapterError, ConfigError, DeviceOutputError
 from ..options import Opt
 from .base import ModemAdapter, summarise_bits, summarise_samples
 
-__all__ = ["ADAPTER", "SYMBOL_KEYS", "GUARD", "SharedLibAdapter"]
+__all__ = ["ADAPTER", "SYMBOL_KEYS", "GUARD", "CANARY_BYTES", "SharedLibAdapter"]
 
 SYMBOL_KEYS = ("modulate", "demodulate", "demodulate_soft")
 _C_IDENTIFIER = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
-#: elements after each output buffer that the device must leave alone
+#: elements of slack in every capacity given (beyond twice the expected count)
 GUARD = 64
-_GUARD_BYTE = 0xA5
+#: bytes of canary before and after every buffer given to the library (a multiple of 64, so
+#: the buffer between them keeps numpy's alignment)
+CANARY_BYTES = 16 << 10
+#: the canary: fixed pseudo-random bytes (no constant a device might write by chance)
+_CANARY = np.random.default_rng(0x6D76_6361).integers(0, 256, CANARY_BYTES, dtype=np.uint8)
+
+
+class _Fenced:
+    """``n`` items of ``dtype`` between two canaries; ``array`` is what the library gets."""
+
+    __slots__ = ("raw", "array", "nbytes", "role")
+
+    def __init__(self, n: int, dtype, role: str, fill=None):
+        dtype = np.dtype(dtype)
+        self.role = role
+        self.nbytes = n * dtype.itemsize
+        raw = np.empty(2 * CANARY_BYTES + self.nbytes, np.uint8)
+        raw[:CANARY_BYTES] = _CANARY
+        raw[CANARY_BYTES + self.nbytes:] = _CANARY
+        self.raw = raw
+        self.array = raw[CANARY_BYTES:CANARY_BYTES + self.nbytes].view(dtype)
+        if fill is not None:
+            self.array[:] = fill
+
+    @property
+    def address(self) -> int:
+        return self.array.ctypes.data
+
+    def damage(self, size: str = "") -> str | None:
+        """What the library did to the canaries, or None when both are whole (``size``: the
+        buffer's capacity, for the message)."""
+        before = np.flatnonzero(self.raw[:CANARY_BYTES] != _CANARY)
+        if before.size:
+            return (f"wrote before the start of its {self.role} (up to {CANARY_BYTES - before[0]}"
+                    f" bytes before it): a buffer underrun")
+        after = np.flatnonzero(self.raw[CANARY_BYTES + self.nbytes:] != _CANARY)
+        if after.size:
+            return (f"wrote past the end of its {self.role}{size}: a buffer overrun "
+                    f"(changed bytes up to {after[-1] + 1} past the end)")
+        return None
 
 
 def _options(spec):
@@ -151,61 +200,56 @@ class SharedLibAdapter(ModemAdapter):
 
     # -- helpers ---------------------------------------------------------------------------
     @staticmethod
-    def _buffer(n: int, dtype) -> np.ndarray:
-        """``n`` elements and a guard zone after them, the guard filled with a known byte."""
-        buf = np.empty(n + GUARD, dtype=dtype)
-        buf[n:].view(np.uint8)[:] = _GUARD_BYTE
-        return buf
-
-    @staticmethod
-    def _check(call: str, ret: int, capacity: int, buf: np.ndarray, used: int, unit: str,
-               describe) -> int:
-        """The count ``ret`` once checked; ``describe()`` summarises the input for an error."""
+    def _check(call: str, ret: int, capacity: int, fences, unit: str, describe) -> int:
+        """The count ``ret`` once checked (the canaries first: an underrun or overrun is the
+        call's, whatever it returned); ``describe()`` summarises the input for an error."""
+        for fence in fences:
+            damage = fence.damage(f" (capacity {capacity} {unit})"
+                                  if fence.role == "output buffer" else "")
+            if damage:
+                raise DeviceOutputError(damage, call=call, input_summary=describe())
         if ret < 0:
             raise AdapterError(f"returned error code {ret}", call=call,
                                input_summary=describe())
         if ret > capacity:
             raise DeviceOutputError(f"reported {ret} {unit} written into a buffer of {capacity}: "
                                     f"a buffer overrun", call=call, input_summary=describe())
-        if np.any(buf[used:].view(np.uint8) != _GUARD_BYTE):
-            raise DeviceOutputError(f"wrote past the end of its output buffer (capacity "
-                                    f"{capacity} {unit}): a buffer overrun", call=call,
-                                    input_summary=describe())
         return ret
 
     # -- calls -----------------------------------------------------------------------------
     def modulate(self, bits):
-        bits = np.ascontiguousarray(bits, dtype=np.uint8)
-        capacity = 2 * (bits.size // self.k) * self.sps + GUARD
-        out = self._buffer(2 * capacity, self._component)
-        ret = self.functions["modulate"](bits.ctypes.data, bits.size, out.ctypes.data, capacity)
-        n = self._check("modulate", ret, capacity, out, 2 * capacity, "samples",
-                        lambda: summarise_bits(bits))
-        return from_format(out[:2 * n], self.sample_format, self.full_scale)
+        bits = _Fenced(np.size(bits), np.uint8, "input buffer", fill=bits)
+        capacity = 2 * (bits.array.size // self.k) * self.sps + GUARD
+        out = _Fenced(2 * capacity, self._component, "output buffer")
+        ret = self.functions["modulate"](bits.address, bits.array.size, out.address, capacity)
+        n = self._check("modulate", ret, capacity, (out, bits), "samples",
+                        lambda: summarise_bits(bits.array))
+        return from_format(out.array[:2 * n], self.sample_format, self.full_scale)
 
-    def _iq(self, samples) -> np.ndarray:
-        return np.ascontiguousarray(encode_samples(samples, self.sample_format, self.full_scale))
+    def _iq(self, samples) -> _Fenced:
+        iq = encode_samples(samples, self.sample_format, self.full_scale)
+        return _Fenced(iq.size, iq.dtype, "input buffer", fill=iq)
 
     def demodulate(self, samples):
         iq = self._iq(samples)
-        n_samples = iq.size // 2
+        n_samples = iq.array.size // 2
         capacity = 2 * (n_samples // self.sps) * self.k + GUARD
-        out = self._buffer(capacity, np.uint8)
-        ret = self.functions["demodulate"](iq.ctypes.data, n_samples, out.ctypes.data, capacity)
-        n = self._check("demodulate", ret, capacity, out, capacity, "bits",
+        out = _Fenced(capacity, np.uint8, "output buffer")
+        ret = self.functions["demodulate"](iq.address, n_samples, out.address, capacity)
+        n = self._check("demodulate", ret, capacity, (out, iq), "bits",
                         lambda: summarise_samples(samples))
-        return out[:n].copy()
+        return out.array[:n].copy()
 
     def demodulate_soft(self, samples, noise_var):
         iq = self._iq(samples)
-        n_samples = iq.size // 2
+        n_samples = iq.array.size // 2
         capacity = 2 * (n_samples // self.sps) * self.k + GUARD
-        out = self._buffer(capacity, np.float32)
-        ret = self.functions["demodulate_soft"](iq.ctypes.data, n_samples, float(noise_var),
-                                                out.ctypes.data, capacity)
-        n = self._check("demodulate_soft", ret, capacity, out, capacity, "LLRs",
+        out = _Fenced(capacity, np.float32, "output buffer")
+        ret = self.functions["demodulate_soft"](iq.address, n_samples, float(noise_var),
+                                                out.address, capacity)
+        n = self._check("demodulate_soft", ret, capacity, (out, iq), "LLRs",
                         lambda: summarise_samples(samples) + f", noise_var={noise_var:.4g}")
-        return out[:n].astype(np.float64)
+        return out.array[:n].astype(np.float64)
 
 
 #: the adapter this module adds (found by adapters.registry)

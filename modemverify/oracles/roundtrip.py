@@ -4,6 +4,13 @@ Fixed vectors first (a de Bruijn sequence of labels, PRBS blocks of several leng
 hypothesis searches bit sequences of varied length for a failure and shrinks it to the smallest
 one, which is what the verdict shows. A device that offers one side only is paired with the
 reference modem on the other side.
+
+Wrong bits are a ``fail``. A device that misbehaves on a call (it crashes, times out, breaks
+the protocol, returns the wrong length: an AdapterError) ends the check at once as an
+``error`` quoting that error and the input: on a fixed vector the search does not start, and
+during the search the error stops it (it is not shrunk: shrinking would call a crashing or
+hanging device hundreds of times, and a failure that does not recur would turn into a
+"fail").
 """
 
 from __future__ import annotations
@@ -12,7 +19,7 @@ import random
 
 import numpy as np
 from hypothesis import HealthCheck, Phase, find, settings
-from hypothesis.errors import NoSuchExample
+from hypothesis.errors import Flaky, NoSuchExample
 
 from ..bench import Bench
 from ..errors import AdapterError
@@ -25,6 +32,15 @@ from ..verdict import Verdict
 from .base import Oracle
 
 __all__ = ["RoundtripOracle", "ORACLE"]
+
+
+class _DeviceFailed(BaseException):
+    """Raised from hypothesis's condition to stop the search (hypothesis lets a BaseException
+    through at once, where it would shrink an Exception)."""
+
+    def __init__(self, error: AdapterError, bits):
+        super().__init__(str(error))
+        self.error, self.bits = error, bits
 
 
 def _bits_text(bits: np.ndarray, k: int) -> str:
@@ -48,22 +64,27 @@ class RoundtripOracle(Oracle):
     def run(self, bench: Bench, opts, rng, seed):
         k = bench.k
 
-        def outcome(bits: np.ndarray) -> tuple[str, str] | None:
-            """None when the round trip holds, else ("fail" or "error", what went wrong)."""
-            try:
-                got = bench.receive(bench.transmit(bits), bits.size // k)
-            except AdapterError as exc:
-                return "error", str(exc)
+        def outcome(bits: np.ndarray) -> str | None:
+            """None when the round trip holds, else what the wrong bits were (an AdapterError
+            from the device propagates)."""
+            got = bench.receive(bench.transmit(bits), bits.size // k)
             if got.size != bits.size:
-                return "fail", f"returned {got.size} bits for {bits.size}"
+                return f"returned {got.size} bits for {bits.size}"
             if not np.array_equal(got, bits):
                 first = int(np.argmax(got != bits))
                 sym = first // k
                 got_sym = _bits_text(got[sym * k:sym * k + k], k)
-                return "fail", (f"returned {got_sym} for symbol {sym} "
+                return (f"returned {got_sym} for symbol {sym} "
                         f"{_bits_text(bits[sym * k:sym * k + k], k)} "
                         f"({int(np.count_nonzero(got != bits))} bit errors)")
             return None
+
+        def device_failed(where: str, ce: str, exc: AdapterError) -> list[Verdict]:
+            return [Verdict(self.name, "error",
+                            f"{bench.sides()}: the device failed on {where}: {exc}",
+                            counterexample=f"{ce}: {exc}", seed=seed,
+                            details={"sides": bench.sides(), "call": exc.call,
+                                     "input": exc.input_summary, "stderr": exc.stderr})]
 
         fixed = [("de Bruijn labels", labels_to_bits(de_bruijn_labels(k, order=2), k))]
         stream = prbs(opts["prbs"], 8191 * k)
@@ -71,10 +92,24 @@ class RoundtripOracle(Oracle):
             fixed.append((f"{opts['prbs']} x {n} symbols", stream[:n * k]))
         first_failure = None
         for label, bits in fixed:
-            problem = outcome(bits)
+            try:
+                problem = outcome(bits)
+            except AdapterError as exc:
+                return device_failed(label, f"{label} ({bits.size} bits)", exc)
             if problem:
                 first_failure = (label, bits, problem)
                 break
+
+        failed: list = []  # the sequences that failed, for a failure that does not recur
+
+        def fails(b) -> bool:
+            try:
+                bad = outcome(b) is not None
+            except AdapterError as exc:
+                raise _DeviceFailed(exc, b) from None
+            if bad:
+                failed.append(b)
+            return bad
 
         # hypothesis: find the smallest failing sequence (always searched, so a failure that
         # only short or odd-length inputs trigger is found too)
@@ -85,10 +120,15 @@ class RoundtripOracle(Oracle):
         minimal = None
         try:
             minimal = find(bit_sequences(k, min_symbols=1, max_symbols=opts["max_symbols"]),
-                           lambda b: outcome(b) is not None, settings=hyp_settings,
-                           random=random.Random(seed))
+                           fails, settings=hyp_settings, random=random.Random(seed))
         except NoSuchExample:
             pass
+        except Flaky:  # failed once, then not: report the sequence it failed on
+            minimal = failed[-1] if failed else None
+        except _DeviceFailed as stop:
+            bits = np.asarray(stop.bits, dtype=np.uint8)
+            return device_failed("a generated sequence", f"bits={_bits_text(bits, k)}",
+                                 stop.error)
         if minimal is None and first_failure is not None and first_failure[1].size <= 64 * k:
             minimal = first_failure[1]
 
@@ -101,14 +141,18 @@ class RoundtripOracle(Oracle):
                             details={"sides": bench.sides()})]
         if minimal is not None:
             minimal = np.asarray(minimal, dtype=np.uint8)
-            kind, problem = outcome(minimal) or ("fail", "failed once, passed when rerun")
-            ce = f"bits={_bits_text(minimal, k)}: {problem}"
+            ce = f"bits={_bits_text(minimal, k)}"
+            try:
+                problem = outcome(minimal) or "failed once, passed when rerun"
+            except AdapterError as exc:  # the rerun of the smallest failure crashed instead
+                return device_failed("the smallest failing sequence, rerun", ce, exc)
+            ce = f"{ce}: {problem}"
             where = "generated" if first_failure is None else first_failure[0]
         else:
-            label, bits, (kind, problem) = first_failure
+            label, bits, problem = first_failure
             ce = f"{label} ({bits.size} bits): {problem}"
             where = label
-        return [Verdict(self.name, kind,
+        return [Verdict(self.name, "fail",
                         f"{bench.sides()} does not return the bits sent (first seen on {where})",
                         counterexample=ce, seed=seed, details={"sides": bench.sides()})]
 

@@ -26,8 +26,11 @@ where it came from; the payload is in ``.npy`` files, raw little-endian binary f
     sha256: {qpsk-3gpp.bits.npy: ..., ...}   # optional; checked when present
 
 Segment ``i`` holds ``symbols * bits_per_symbol`` bits and ``symbols * samples_per_symbol``
-samples, taken in order from the payload. Paths are relative to the header. ``.npy`` files are
-read with ``allow_pickle=False``; the header with ``yaml.safe_load``.
+samples, taken in order from the payload. Paths are relative to the header and stay inside its
+folder (an absolute path, or one that climbs out with ``..``, is refused). ``.npy`` files are
+read with ``allow_pickle=False``, after their header is checked against the file's size (a
+header claiming more elements than the file holds is refused before anything is allocated);
+the header with ``yaml.safe_load``.
 
 :func:`golden_vector_set` builds the golden sets that ``modemverify vectors export`` writes: the
 bits and the expected points of a published convention (3GPP TS 38.211 5.1, IEEE 802.11 OFDM
@@ -38,6 +41,7 @@ documents.
 from __future__ import annotations
 
 import hashlib
+import os
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -63,7 +67,7 @@ from .prbs import prbs
 __all__ = [
     "FORMAT", "VERSION", "CALLS", "GOLDEN_SEGMENTS", "SHIPPED_SETS", "Segment", "VectorSet",
     "default_segments", "golden_vector_set", "write_vector_set", "export_golden",
-    "read_vector_set",
+    "read_vector_set", "load_npy",
 ]
 
 FORMAT = "modemverify-vectors"
@@ -259,19 +263,50 @@ def _need(cond: bool, message: str, file: str, key: str) -> None:
 
 
 def _payload_path(folder: Path, name, file: str, key: str) -> Path:
-    _need(isinstance(name, str) and bool(name), f"{key.rsplit('.', 1)[-1]}={name!r}: expected "
-          f"a file name relative to the header", file, key)
+    short = key.rsplit('.', 1)[-1]
+    _need(isinstance(name, str) and bool(name) and "\0" not in name, f"{short}={name!r}: "
+          f"expected a file name relative to the header", file, key)
+    inside = os.path.normpath(name)
+    _need(not os.path.isabs(name) and inside != ".." and
+          not inside.startswith(".." + os.sep) and not (os.altsep and inside.startswith(
+              ".." + os.altsep)),
+          f"{short}={name!r}: payload files must be in the header's folder or below it (no "
+          f"absolute path, no '..' out of it)", file, key)
     path = folder / name
-    _need(path.is_file(), f"{key.rsplit('.', 1)[-1]}={name!r}: no such file {path}", file, key)
+    _need(path.is_file(), f"{short}={name!r}: no such file {path}", file, key)
     return path
 
 
-def _load_npy(path: Path, file: str, key: str, kinds: str) -> np.ndarray:
+def load_npy(path: Path, file: str | None, key: str) -> np.ndarray:
+    """A ``.npy`` file's array (``allow_pickle=False``); raises ConfigError naming ``file``
+    and ``key`` for a file that is not one, or whose header claims more data than it holds
+    (checked before anything is allocated)."""
     try:
-        arr = np.load(path, allow_pickle=False)
-    except (ValueError, OSError) as exc:
+        with open(path, "rb") as f:
+            version = np.lib.format.read_magic(f)
+            read_header = (np.lib.format.read_array_header_1_0 if version == (1, 0) else
+                           np.lib.format.read_array_header_2_0)
+            shape, _, dtype = read_header(f)
+            data_bytes = os.fstat(f.fileno()).st_size - f.tell()
+    except (ValueError, OSError, EOFError) as exc:
         raise ConfigError(f"{path.name}: not a readable .npy file ({exc})", file=file,
                           key=key) from None
+    count = 1
+    for n in shape:
+        count *= int(n)
+    _need(count * dtype.itemsize <= data_bytes,
+          f"{path.name}: its header claims an array of shape {shape} ({count} elements of "
+          f"{dtype}, {count * dtype.itemsize} bytes); the file holds {data_bytes} bytes of data",
+          file, key)
+    try:
+        return np.load(path, allow_pickle=False)
+    except (ValueError, OSError, MemoryError) as exc:
+        raise ConfigError(f"{path.name}: not a readable .npy file ({exc})", file=file,
+                          key=key) from None
+
+
+def _load_npy(path: Path, file: str, key: str, kinds: str) -> np.ndarray:
+    arr = load_npy(path, file, key)
     _need(arr.ndim == 1 and arr.dtype.kind in kinds,
           f"{path.name}: an array of shape {arr.shape} and dtype {arr.dtype}; expected 1-D "
           f"{'uint8 bits' if kinds == 'ui' else 'complex samples'}", file, key)

@@ -60,6 +60,18 @@ long mod(const uint8_t *bits, size_t n_bits, float *iq, size_t capacity)
 #ifdef OVERRUN
     iq[2 * capacity + 3] = 0.0f;              /* writes past the buffer */
 #endif
+#ifdef FAR_OVERRUN
+    for (size_t i = 0; i < 64; i++)           /* 64 floats, 1000 elements past the buffer */
+        iq[2 * capacity + 1000 + i] = 0.5f;
+#endif
+#ifdef UNDERRUN
+    if (n_bits > 6000)                        /* long blocks: a bad offset before the buffer */
+        for (size_t i = 1; i <= 8; i++)
+            iq[-(long)i] = 0.0f;
+#endif
+#ifdef INPUT_OVERRUN
+    ((uint8_t *)bits)[n_bits + 5] = 1;        /* scribbles past its (const) input */
+#endif
     return (long)n;
 }
 

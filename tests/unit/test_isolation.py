@@ -45,10 +45,30 @@ class Qpsk:
     def __init__(self, misbehave=None, marker=None):
         self.misbehave = misbehave
         self.marker = marker
+        if misbehave == "hang-in-constructor":
+            time.sleep(3600)
 
     def modulate(self, bits):
         b = bits.reshape(-1, 2).astype(float)
         m = self.misbehave
+        if m in ("fork", "fork-hang") and not Path(self.marker).exists():
+            pid = os.fork()
+            if pid == 0:  # a helper process that lives on, holding the worker's descriptors
+                time.sleep(3600)
+                os._exit(0)
+            Path(self.marker).write_text(str(pid))
+        if m == "fork-hang":
+            time.sleep(3600)
+        if m in ("abort-once", "hang-once") and 36 <= bits.size < 128 and \
+                not Path(self.marker).exists():  # once, on a length only the search draws
+            Path(self.marker).write_text(str(bits.size))
+            if m == "abort-once":
+                os.abort()
+            time.sleep(3600)
+        if m == "keyboardinterrupt":
+            raise KeyboardInterrupt
+        if m == "baseexception":
+            raise GeneratorExit("frame sync lost")
         if m == "hang" and bits.size > 5000:
             time.sleep(3600)
         if m == "hang-always":
@@ -69,6 +89,12 @@ class Qpsk:
             return y[:-1]
         if m == "none":
             return None
+        if m == "huge":
+            return np.zeros(200_000_000, np.complex64)  # calloc: costs nothing unless copied
+        if m == "huge-2d":
+            return np.zeros((100_000_000, 2), np.complex64)
+        if m == "huge-list":
+            return [0j] * 5_000_000
         if m == "mutate":
             bits[:] = 1
         return y
@@ -176,9 +202,12 @@ def test_death_is_reported_and_the_next_call_gets_a_new_worker(tmp_path, misbeha
         adapter.close()
 
 
-@pytest.mark.parametrize("misbehave", ["strings", "nan", "short", "none"])
+@pytest.mark.parametrize("misbehave", ["strings", "nan", "short", "none", "huge", "huge-2d",
+                                       "huge-list", "keyboardinterrupt", "baseexception"])
 def test_bad_output_is_judged_as_in_process(tmp_path, misbehave):
-    """dtype, length, NaN and None cross the pipe unchanged, so the guard says the same."""
+    """dtype, length, NaN and None cross the pipe unchanged, so the guard says the same; an
+    answer above the size cap is judged from its dtype and shape, never sent; what a device
+    raises (a BaseException too) is named alike."""
     path = device_file(tmp_path, misbehave)
     spec = load_device(path)
     local = GuardedDevice(PythonAdapter.from_spec(spec), 2)
@@ -189,7 +218,11 @@ def test_bad_output_is_judged_as_in_process(tmp_path, misbehave):
             local.modulate(bits)
         with pytest.raises(AdapterError) as there:
             remote.modulate(bits)
-        assert str(there.value) == str(here.value)
+        if misbehave in ("keyboardinterrupt", "baseexception"):  # the worker adds its traceback
+            assert "Traceback" in there.value.stderr
+            there.value.stderr = here.value.stderr
+        assert (there.value.raw_message, there.value.call, there.value.input_summary) == \
+            (here.value.raw_message, here.value.call, here.value.input_summary)
         assert type(there.value) is type(here.value)
     finally:
         adapter.close()
@@ -278,3 +311,110 @@ def test_sigterm_leaves_a_complete_junit_file(tmp_path, isolate):
     assert int(suite.get("tests")) == len(names)
     assert "finite" in names  # finished before the signal: kept
     assert not [p for p in os.listdir(tmp_path) if p.startswith(".junit.xml.")]  # no temp left
+
+
+def test_a_constructor_that_hangs_is_stopped(tmp_path, monkeypatch):
+    # only a worker survives a constructor that never returns (in process nothing can stop it)
+    monkeypatch.setattr("modemverify.adapters.isolated.OPEN_TIMEOUT_S", 1.0)
+    result = check(device_file(tmp_path, "hang-in-constructor", timeout_s=0.5))
+    (v,) = result.verdicts
+    assert v.name == "device.open" and v.outcome == "error" and not result.ok
+    assert "the device was not open after 1 s; the worker was stopped" in v.reason
+
+
+def _alive(pid: int) -> bool:
+    """True while ``pid`` runs (a zombie has ended; the container's init may never reap it)."""
+    try:
+        state = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()[0]
+    except (FileNotFoundError, ProcessLookupError):
+        return False
+    return state not in ("Z", "X")
+
+
+def _gone(pid: int, wait_s: float = 30.0) -> bool:
+    """Whether ``pid`` has ended, waiting up to ``wait_s`` for a SIGKILL to land."""
+    deadline = time.monotonic() + wait_s
+    while _alive(pid):
+        if time.monotonic() > deadline:
+            return False
+        time.sleep(0.05)
+    return True
+
+
+@pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="reads /proc")
+def test_processes_a_device_starts_end_with_its_worker_on_a_timeout(tmp_path):
+    marker = tmp_path / "pid"
+    adapter, device = guarded(device_file(tmp_path, "fork-hang", timeout_s=0.5,
+                                          params={"marker": str(marker)}))
+    try:
+        with pytest.raises(DeviceTimeout):
+            device.modulate(np.zeros(2, np.uint8))
+        pid = int(marker.read_text())
+        assert _gone(pid), f"process {pid} the device started outlived its stopped worker"
+    finally:
+        adapter.close()
+
+
+@pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="reads /proc")
+def test_a_device_that_forks_does_not_keep_the_cli_output_open(tmp_path):
+    marker = tmp_path / "pid"
+    path = device_file(tmp_path, "fork", params={"marker": str(marker)}, checks=FAST)
+    proc = subprocess.Popen([sys.executable, "-m", "modemverify.cli", "check", str(path)],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    try:
+        # returns only when every holder of the output pipes has closed them
+        out, err = proc.communicate(timeout=300)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+            proc.wait()
+    assert proc.returncode == 0, out + err
+    pid = int(marker.read_text())
+    assert _gone(pid), f"process {pid} the device started outlived the run"
+
+
+def test_a_random_py_in_the_working_folder_does_not_break_isolation(tmp_path):
+    work = tmp_path / "work"
+    work.mkdir()
+    (work / "random.py").write_text("raise ImportError('this random.py shadows the standard "
+                                    "library')\n")
+    # as the installed `modemverify` script runs: its own folder, not the working one, first
+    launcher = tmp_path / "bin" / "modemverify-launcher.py"
+    launcher.parent.mkdir()
+    launcher.write_text("import sys\nfrom modemverify.cli import main\n"
+                        "if __name__ == '__main__':\n    sys.exit(main())\n")
+    path = device_file(work, None, checks=FAST)
+    env = {**os.environ, "PYTHONPATH": os.pathsep.join(p for p in sys.path if p)}
+    proc = subprocess.run([sys.executable, str(launcher), "check", str(path)], cwd=work,
+                          capture_output=True, text=True, timeout=300, env=env)
+    assert proc.returncode == 0, proc.stdout + proc.stderr
+    assert "shadows" not in proc.stdout + proc.stderr
+    assert "PASS    mapping" in proc.stdout
+
+
+def test_the_worker_path_puts_the_working_folder_last(tmp_path):
+    from modemverify.adapters.isolated import worker_path
+
+    here = str(tmp_path)
+    assert worker_path(["", "/opt/lib", here, "/site"], here) == ["/opt/lib", "/site", here]
+    assert worker_path(["/opt/lib"], here) == ["/opt/lib"]
+
+
+@pytest.mark.parametrize("misbehave, words", [
+    ("abort-once", "was killed by signal SIGABRT"),
+    ("hang-once", "did not return within timeout_s=0.5 s"),
+])
+def test_a_failure_of_the_device_during_the_search_is_an_error_not_a_fail(
+        tmp_path, misbehave, words):
+    # the device fails once, on a length only hypothesis draws: the search stops there and the
+    # verdict quotes the error (a rerun would pass, which used to make it a "fail")
+    marker = tmp_path / "once"
+    path = device_file(tmp_path, misbehave, timeout_s=0.5, params={"marker": str(marker)})
+    (v,) = check(path, only=["roundtrip"]).verdicts
+    assert marker.exists(), "the search never drew a length the device fails on"
+    n = int(marker.read_text())
+    assert v.outcome == "error", (v.reason, v.counterexample)
+    assert "the device failed on a generated sequence: modulate(): " in v.reason
+    assert words in v.reason and f"bits[{n}]=" in v.reason
+    assert "does not return the bits sent" not in v.reason
+    assert v.counterexample.startswith("bits=[") and words in v.counterexample

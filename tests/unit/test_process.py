@@ -35,6 +35,9 @@ FAST = {"ber": False, "llr": False}
 SCRIPTED = r'''
 import json, os, struct, sys, time
 mode = sys.argv[1]
+if os.environ.get("MV_PIDS"):  # the test reads the pids of the processes the device runs
+    with open(os.environ["MV_PIDS"], "a") as f:
+        f.write(f"{os.getpid()}\n")
 rd, wr = sys.stdin.buffer, sys.stdout.buffer
 if mode == "hang":  # one line per start, so a test can tell which processes still live
     with open(os.path.join(os.path.dirname(os.path.abspath(sys.argv[0])), "pids"), "a") as f:
@@ -79,6 +82,9 @@ while True:
         frame(b"E", seq, struct.pack("<i", -7) + b"symbol clock lost")
         continue
     if mode == "wrong-seq":
+        seq += 1
+    if mode == "wrong-seq-once" and 36 <= n < 128 and not os.path.exists("once"):
+        open("once", "w").write(str(n))  # once, on a length only the search draws
         seq += 1
     a = 0.7071067811865476
     out = b"".join(struct.pack("<ff", a - 2 * a * payload[i], a - 2 * a * payload[i + 1])
@@ -320,3 +326,136 @@ def test_serve_round_trip_over_pipes():
     finally:
         proc.kill()
         proc.wait()
+
+
+# a "billion laughs": nine levels of ten aliases, 10**9 strings once expanded (YAML 1.1
+# aliases, yaml.safe_load keeps them shared until something walks them)
+BILLION_LAUGHS = """\
+name: laughs
+adapter: process
+command: ["{python}", scripted.py, plain]
+scheme: {modulation: qpsk, convention: 3gpp}
+params:
+  a: &a [lol, lol, lol, lol, lol, lol, lol, lol, lol, lol]
+  b: &b [*a, *a, *a, *a, *a, *a, *a, *a, *a, *a]
+  c: &c [*b, *b, *b, *b, *b, *b, *b, *b, *b, *b]
+  d: &d [*c, *c, *c, *c, *c, *c, *c, *c, *c, *c]
+  e: &e [*d, *d, *d, *d, *d, *d, *d, *d, *d, *d]
+  f: &f [*e, *e, *e, *e, *e, *e, *e, *e, *e, *e]
+  g: &g [*f, *f, *f, *f, *f, *f, *f, *f, *f, *f]
+  h: &h [*g, *g, *g, *g, *g, *g, *g, *g, *g, *g]
+  i: &i [*h, *h, *h, *h, *h, *h, *h, *h, *h, *h]
+"""
+
+
+def test_params_that_expand_to_a_billion_values_are_refused_at_load(tmp_path):
+    (tmp_path / "scripted.py").write_text(SCRIPTED)
+    path = tmp_path / "laughs.yaml"
+    path.write_text(BILLION_LAUGHS)
+    with pytest.raises(ConfigError) as info:
+        load_device(path)
+    assert info.value.key == "params" and "more than 100000 values" in str(info.value)
+
+
+@pytest.mark.parametrize("value, key, words", [
+    ("2024-05-01", "params.when", "date is not JSON data"),
+    ("!!binary aGVsbG8=", "params.when", "bytes is not JSON data"),
+    ("!!set {a, b}", "params.when", "set is not JSON data"),
+    (".nan", "params.when", "JSON has no NaN or infinity"),
+    ("{1: x}", "params.when", "the key 1 is int; JSON keys are text"),
+])
+def test_params_must_be_plain_json_data(tmp_path, value, key, words):
+    (tmp_path / "scripted.py").write_text(SCRIPTED)
+    path = tmp_path / "dev.yaml"
+    path.write_text(f"name: d\nadapter: process\ncommand: ['{{python}}', scripted.py, plain]\n"
+                    f"scheme: {{modulation: qpsk, convention: 3gpp}}\nparams: {{when: {value}}}\n")
+    with pytest.raises(ConfigError) as info:
+        load_device(path)
+    assert info.value.key == key and words in str(info.value), str(info.value)
+
+
+def test_params_too_large_to_send_are_refused(tmp_path):
+    path = scripted(tmp_path, "plain", params={"taps": ["0.125" * 200] * 2000})
+    with pytest.raises(ConfigError, match="bytes as JSON; the hello carries at most 1048576"):
+        load_device(path)
+
+
+@pytest.mark.parametrize("env, key", [
+    ({"A=B": "1"}, "env"),
+    ({"": "1"}, "env"),
+    ({"MODEM": "a\0b"}, "env.MODEM"),
+])
+def test_env_names_and_values_the_system_cannot_hold_are_refused(tmp_path, env, key):
+    with pytest.raises(ConfigError) as info:
+        load_device(scripted(tmp_path, "plain", env=env))
+    assert info.value.key == key
+
+
+def _alive(pid: int) -> bool:
+    """True while ``pid`` runs (a zombie has ended; the container's init may never reap it)."""
+    try:
+        state = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()[0]
+    except (FileNotFoundError, ProcessLookupError):
+        return False
+    return state not in ("Z", "X")
+
+
+def _all_gone(pids, wait_s: float = 30.0) -> list[int]:
+    """The pids still running after waiting up to ``wait_s`` for SIGKILLs to land."""
+    deadline = time.monotonic() + wait_s
+    while (left := [p for p in pids if _alive(p)]) and time.monotonic() < deadline:
+        time.sleep(0.05)
+    return left
+
+
+def shell_wrapped(tmp_path: Path, mode: str, **extra) -> tuple[Path, Path]:
+    """A device started through /bin/sh -c that also starts a background helper; the shell
+    waits for the device (not exec), so the device is the shell's child, not the harness's."""
+    (tmp_path / "scripted.py").write_text(SCRIPTED)
+    pids = tmp_path / "pids"
+    line = f"sleep 3600 & echo $! >> {pids}; {sys.executable} scripted.py {mode}; echo ended"
+    return write_device(tmp_path, f"sh-{mode}", {
+        "adapter": "process", "command": ["/bin/sh", "-c", line], "env": {"MV_PIDS": str(pids)},
+        "scheme": {"modulation": "qpsk", "convention": "3gpp"}, **extra}), pids
+
+
+def _pids(path: Path) -> list[int]:
+    return [int(p) for p in path.read_text().split()]
+
+
+@pytest.mark.skipif(not Path("/bin/sh").exists() or not Path("/proc/self/stat").exists(),
+                    reason="needs /bin/sh and /proc")
+def test_a_timeout_kills_what_a_shell_wrapped_device_started(tmp_path):
+    path, pids = shell_wrapped(tmp_path, "hang", timeout_s=0.5)
+    adapter = open_adapter(path)
+    try:
+        shell = adapter._child.popen.pid
+        assert os.getpgid(shell) == shell  # the device leads its own process group
+        with pytest.raises(DeviceTimeout):
+            adapter.modulate(np.zeros(200, np.uint8))
+        started = _pids(pids)  # the helper (sleep) and the device (python)
+        assert len(started) == 2
+        assert _all_gone([shell, *started]) == []
+    finally:
+        adapter.close()
+
+
+@pytest.mark.skipif(not Path("/bin/sh").exists() or not Path("/proc/self/stat").exists(),
+                    reason="needs /bin/sh and /proc")
+def test_after_a_run_no_process_the_device_started_is_alive(tmp_path):
+    path, pids = shell_wrapped(tmp_path, "plain", checks=FAST)
+    result = check(path, only=["mapping", "finite"])
+    assert result.ok, [(v.name, v.reason) for v in result.verdicts]
+    started = _pids(pids)
+    assert len(started) == 2
+    assert _all_gone(started) == []
+
+
+def test_a_protocol_error_during_the_search_is_an_error_not_a_fail(tmp_path):
+    (v,) = check(scripted(tmp_path, "wrong-seq-once"), only=["roundtrip"]).verdicts
+    assert (tmp_path / "once").exists(), "the search never drew a length the device fails on"
+    n = int((tmp_path / "once").read_text())
+    assert v.outcome == "error", (v.reason, v.counterexample)
+    assert "the device failed on a generated sequence: modulate(): protocol error: reply " \
+           "numbered" in v.reason and f"bits[{n}]=" in v.reason
+    assert "does not return the bits sent" not in v.reason

@@ -299,3 +299,85 @@ def test_vectors_export_command(tmp_path):
                          capture_output=True, text=True, timeout=120)
     assert bad.returncode == 2 and "--all or both --modulation and --convention" in bad.stderr
     shutil.rmtree(tmp_path)
+
+
+# -- files that lie ---------------------------------------------------------------------------
+
+def _forged_npy(path: Path, shape, descr="<c16", data=b"\0" * 64) -> None:
+    """A .npy file whose header claims ``shape`` over a few bytes of data."""
+    import io
+
+    buf = io.BytesIO()
+    np.lib.format.write_array_header_1_0(buf, {"descr": descr, "fortran_order": False,
+                                               "shape": shape})
+    path.write_bytes(buf.getvalue() + data)
+
+
+@pytest.mark.parametrize("entry, name, key", [
+    ("bits", "/etc/passwd", "bits.raw"),
+    ("bits", "../outside.bits.u8", "bits.raw"),
+    ("samples", "sub/../../outside.iq.npy", "samples.npy"),
+])
+def test_payload_paths_stay_in_the_headers_folder(tmp_path, entry, name, key):
+    folder = tmp_path / "set"
+    header = write_vector_set(golden_vector_set("qpsk", "3gpp"), folder)
+    (tmp_path / "outside.bits.u8").write_bytes((folder / "qpsk-3gpp.bits.u8").read_bytes())
+    (tmp_path / "outside.iq.npy").write_bytes((folder / "qpsk-3gpp.iq.npy").read_bytes())
+    head = yaml.safe_load(header.read_text())
+    head.pop("sha256")
+    kind = key.rsplit(".", 1)[1]
+    original = head[entry]
+    head[entry] = {"count": original["count"], kind: name}
+    header.write_text(yaml.safe_dump(head))
+    with pytest.raises(ConfigError) as info:
+        read_vector_set(header)
+    assert info.value.key == key and info.value.file == str(header)
+    assert f"{kind}={name!r}: payload files must be in the header's folder" in str(info.value)
+    head[entry] = original  # the set's own file names are read as before
+    header.write_text(yaml.safe_dump(head))
+    vs = read_vector_set(header)
+    assert vs.bits.size == 2 * vs.samples.size
+
+
+def test_a_npy_header_claiming_1e11_elements_is_refused_before_allocation(tmp_path):
+    header = write_vector_set(golden_vector_set("qpsk", "3gpp"), tmp_path)
+    head = yaml.safe_load(header.read_text())
+    head.pop("sha256")
+    header.write_text(yaml.safe_dump(head))
+    _forged_npy(tmp_path / "qpsk-3gpp.iq.npy", (10**11,))  # 1.6 TB if allocated
+    with pytest.raises(ConfigError) as info:
+        read_vector_set(header)
+    assert info.value.key == "samples.npy"
+    assert "its header claims an array of shape (100000000000,)" in str(info.value)
+    assert "the file holds 64 bytes of data" in str(info.value)
+
+
+def test_a_forged_bits_sidecar_is_refused(tmp_path):
+    _sigmf(tmp_path, annotate=False)
+    _forged_npy(tmp_path / "sent.npy", (10**11,), descr="|u1")
+    with pytest.raises(ConfigError) as info:
+        load_device(_sigmf_device(tmp_path, recording="capture.sigmf-meta", bits="sent.npy"))
+    assert info.value.key == "bits" and "its header claims" in str(info.value)
+
+
+def test_a_negative_sigmf_sample_start_is_a_bad_file(tmp_path):
+    import json
+
+    base, _ = _sigmf(tmp_path)
+    meta = json.loads(Path(f"{base}.sigmf-meta").read_text())
+    meta["annotations"][1]["core:sample_start"] = -4
+    Path(f"{base}.sigmf-meta").write_text(json.dumps(meta))
+    with pytest.raises(ConfigError) as info:
+        load_device(_sigmf_device(tmp_path, recording="capture.sigmf-meta"))
+    assert info.value.key == "recording"
+    assert "annotations[1].core:sample_start=-4: expected a whole number >= 0" in \
+        str(info.value)
+
+
+def test_a_sigmf_meta_without_its_data_file_is_a_config_error(tmp_path):
+    base, _ = _sigmf(tmp_path)
+    Path(f"{base}.sigmf-data").unlink()
+    with pytest.raises(ConfigError) as info:
+        load_device(_sigmf_device(tmp_path, recording="capture.sigmf-meta"))
+    assert info.value.key == "recording"
+    assert "its data file capture.sigmf-data is missing" in str(info.value)

@@ -26,7 +26,7 @@ from _cmodems import (
 
 from modemverify.adapters.base import GuardedDevice
 from modemverify.adapters.isolated import IsolatedAdapter
-from modemverify.adapters.sharedlib import SharedLibAdapter
+from modemverify.adapters.sharedlib import CANARY_BYTES, SharedLibAdapter
 from modemverify.config import load_device
 from modemverify.errors import AdapterError, ConfigError, DeviceOutputError
 from modemverify.runner import check
@@ -184,3 +184,43 @@ def test_missing_symbol_is_a_config_error_from_the_worker(tmp_path):
         "scheme": {"modulation": "qpsk", "convention": "3gpp"}})
     with pytest.raises(ConfigError, match="'qpsk_mod': libtiny.so exports no such function"):
         check(path)
+
+
+def test_a_far_overrun_is_reported(tmp_path):
+    """64 floats written 1000 elements past the buffer: beyond the capacity slack, inside the
+    canary after it."""
+    spec = load_device(qpsk_sharedlib(tmp_path, "far", ["FAR_OVERRUN"], isolate=False))
+    device = GuardedDevice(SharedLibAdapter.from_spec(spec), 2)
+    with pytest.raises(DeviceOutputError) as info:
+        device.modulate(np.zeros(8, np.uint8))
+    text = str(info.value)
+    assert "wrote past the end of its output buffer (capacity 72 samples): a buffer overrun" \
+        in text
+    assert f"changed bytes up to {(1000 + 64) * 4} past the end" in text
+    assert CANARY_BYTES > (1000 + 64) * 4  # the canary reaches that far
+
+
+def test_a_far_overrun_fails_the_run_isolated(tmp_path):
+    result = check(qpsk_sharedlib(tmp_path, "far", ["FAR_OVERRUN"], checks=FAST))
+    assert not result.ok
+    v = by_name(result)
+    assert v["mapping"].outcome == "error" and "buffer overrun" in v["mapping"].reason
+
+
+def test_an_underrun_is_blamed_on_the_call_that_made_it(tmp_path):
+    result = check(qpsk_sharedlib(tmp_path, "under", ["UNDERRUN"], checks=FAST))
+    v = by_name(result)
+    # only the blocks longer than 6000 bits write before the buffer; the short probes pass
+    assert v["mapping"].outcome == "pass" and v["finite"].outcome == "pass"
+    assert v["length"].outcome == "error"
+    assert "modulate(): wrote before the start of its output buffer (up to 32 bytes before " \
+           "it): a buffer underrun" in v["length"].reason
+    assert "bits[8192]" in v["length"].reason
+
+
+def test_a_write_past_the_input_buffer_is_reported(tmp_path):
+    spec = load_device(qpsk_sharedlib(tmp_path, "inover", ["INPUT_OVERRUN"], isolate=False))
+    device = GuardedDevice(SharedLibAdapter.from_spec(spec), 2)
+    with pytest.raises(DeviceOutputError, match="wrote past the end of its input buffer: a "
+                                                "buffer overrun"):
+        device.modulate(np.zeros(8, np.uint8))
