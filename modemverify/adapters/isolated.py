@@ -51,8 +51,20 @@ from pathlib import Path
 import numpy as np
 
 from .. import errors
-from ..errors import AdapterError, ConfigError, DeviceCrashed, DeviceOutputError, DeviceTimeout
-from .base import ModemAdapter, describe_raise, max_output, summarise_bits, summarise_samples
+from ..errors import (
+    AdapterError,
+    ConfigError,
+    DeviceCrashed,
+    DeviceOutputError,
+    DeviceTimeout,
+)
+from .base import (
+    ModemAdapter,
+    describe_raise,
+    max_output,
+    summarise_bits,
+    summarise_samples,
+)
 from .registry import get_adapter_class
 
 #: opening a device (starting the worker, the adapter's from_spec) may take this long at least

@@ -104,10 +104,13 @@ def test_checks_without_recorded_vectors_get_an_error_naming_why(tmp_path):
     v = {x.name: x for x in check(path).verdicts}
     assert v["mapping"].outcome == "pass"
     # length asks for PRBS prefixes the recording may lack: an error that says so
-    assert v["length"].outcome == "error"
-    assert "no recording for these bits" in v["length"].reason
+    assert v["length.modulate"].outcome == "error"
+    assert "no recording for these bits" in v["length.modulate"].reason
     # checks that draw fresh vectors are skipped, with the reason, never run on nonsense
-    for name in ("roundtrip", "ber", "llr"):
+    fresh = ["roundtrip", "llr.sign", "llr.calibration", "llr.mutual_information"] + [
+        n for n in v if n.startswith("ber.ebn0=")]
+    assert len(fresh) == 7  # roundtrip, the three default BER points, the three llr parts
+    for name in fresh:
         assert v[name].outcome == "skipped"
         assert "replays a recording" in v[name].reason
 
