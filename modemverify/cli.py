@@ -11,23 +11,25 @@ import contextlib
 import json
 import os
 import sys
-from pathlib import Path
 
 from ._version import __version__
-from .compare import compare
 from .config import load_device
 from .demo import run_demo
 from .errors import AdapterError, ConfigError, UnknownNameError
 from .identify import identify
 from .oracles import ORACLES
-from .report.console import render_run
-from .report.html import write_report
-from .report.junit import write_junit
 from .report.outputs import OutputLock, check_output_file, check_output_folder
 from .runner import DEFAULT_SEED
 from .schemes.conventions import CONVENTIONS, MODULATIONS
 from .schemes.theory import THEORY_MODULATIONS, ber, ebn0_for_ber, ser
-from .session import EXIT_FAIL, EXIT_INTERRUPTED, EXIT_OK, EXIT_USAGE, run_and_report
+from .session import (
+    EXIT_FAIL,
+    EXIT_INTERRUPTED,
+    EXIT_OK,
+    EXIT_USAGE,
+    compare_and_report,
+    run_and_report,
+)
 from .vectors.recording import SHIPPED_SETS, export_golden
 
 __all__ = [
@@ -126,8 +128,12 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
-def main(argv: list[str] | None = None) -> int:
+def main(argv: list[str] | None = None, *, signal_before: int | None = None) -> int:
+    """Run the command line; ``signal_before`` is a stop signal that arrived while it loaded
+    (see :mod:`modemverify._entry`): a check or compare run then stops at once, with its record.
+    """
     args = build_parser().parse_args(argv)
+    args.signal_before = signal_before
     commands = {"check": cmd_check, "identify": cmd_identify, "compare": cmd_compare,
                 "checks": cmd_checks, "theory": cmd_theory, "vectors": cmd_vectors_export,
                 "demo": cmd_demo}
@@ -154,10 +160,10 @@ def cmd_check(args) -> int:
     for name in args.only or []:
         if name not in ORACLES:
             raise UnknownNameError("check", name, ORACLES, key="--only")
-    specs = [load_device(p) for p in args.devices]  # validate every file before running any
-    with _outputs(args):
-        _, code = run_and_report(specs, seed=args.seed, only=args.only, junit=args.junit,
-                                 report=args.report)
+    with _outputs(args):  # the files are loaded inside, under the signal handler
+        _, code = run_and_report(args.devices, seed=args.seed, only=args.only,
+                                 junit=args.junit, report=args.report,
+                                 signal_before=args.signal_before)
     return code
 
 
@@ -220,17 +226,11 @@ def cmd_compare(args) -> int:
 
 
 def _compare(args, a, b) -> int:
-    result = compare(a, b, seed=args.seed, evm_limit_percent=args.evm_limit,
-                     sample_error_percent=args.sample_error,
-                     spectrum_tolerance_db=args.spectrum_tolerance)
-    print(render_run(result))
-    if args.junit:
-        write_junit([result], args.junit)
-        print(f"JUnit: {args.junit}")
-    if args.report:
-        write_report([result], args.report, title="modemverify comparison")
-        print(f"Report: {Path(args.report) / 'index.html'}")
-    return EXIT_OK if result.ok else EXIT_FAIL
+    _, code = compare_and_report(a, b, seed=args.seed, junit=args.junit, report=args.report,
+                                 evm_limit_percent=args.evm_limit,
+                                 sample_error_percent=args.sample_error,
+                                 spectrum_tolerance_db=args.spectrum_tolerance)
+    return code
 
 
 def cmd_checks(args) -> int:

@@ -82,6 +82,8 @@ class RunResult:
     version: str = __version__
     notes: list[str] = field(default_factory=list)
     interrupted: bool = False
+    #: the checks the run was limited to (``--only``), for the rerun hint; empty for all
+    only: tuple[str, ...] = ()
 
     def __repr__(self) -> str:
         status = "INTERRUPTED" if self.interrupted else "OK" if self.ok else "NOT OK"
@@ -245,7 +247,8 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
         # every verdict the device file promises, as an error: the names do not change
         emit(not_judged(expected_names(spec, only), "error",
                         f"the device could not be opened: {exc}", seed))
-        return RunResult(Subject.of(spec), verdicts, seed, time.perf_counter() - t0)
+        return RunResult(Subject.of(spec), verdicts, seed, time.perf_counter() - t0,
+                         only=tuple(only or ()))
     try:
         for name, oracle in ORACLES.items():
             opts = spec.checks.get(name)
@@ -256,7 +259,7 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
     finally:
         bench.device.close()
     return RunResult(Subject.of(spec), verdicts, seed, time.perf_counter() - t0,
-                     device_time_s=bench.device.device_time_s)
+                     device_time_s=bench.device.device_time_s, only=tuple(only or ()))
 
 
 def check_object(device, *, modulation: str, convention: str, samples_per_symbol: int = 1,

@@ -40,7 +40,8 @@ def render_summary(result) -> str:
     lines = [f"  -> {status}: {result.tally() or 'no verdicts'} ({result.duration_s:.1f} s)"]
     lines += [f"  {note}" for note in result.notes]
     if not result.ok and subject.file:
-        lines.append(f"  rerun: modemverify check {subject.file} --seed {result.seed}")
+        only = "".join(f" --only {name}" for name in result.only)
+        lines.append(f"  rerun: modemverify check {subject.file} --seed {result.seed}{only}")
     return "\n".join(lines)
 
 

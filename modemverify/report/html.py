@@ -165,7 +165,9 @@ def write_report(results, folder: str | Path, *, title: str = "modemverify repor
                          + (f" (sha256 <code>{html.escape(digest[:16])}…</code>)"
                             if digest else "")
                          + f"; rerun <code>modemverify check {html.escape(subject.file)} "
-                           f"--seed {result.seed}</code>")
+                           f"--seed {result.seed}"
+                         + html.escape("".join(f" --only {n}" for n in result.only))
+                         + "</code>")
         sections.append(
             f"<h2 id='{stem}'>{html.escape(subject.name)} — {status}</h2>{interrupted}"
             + (f"<p>{html.escape(subject.description)}</p>" if subject.description else "")

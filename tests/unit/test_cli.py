@@ -123,3 +123,27 @@ def test_console_script_runs_as_a_process(tmp_path):
     proc = subprocess.run([sys.executable, "-m", "modemverify.cli", "check", str(f)],
                           capture_output=True, text=True, timeout=120)
     assert proc.returncode == 0, proc.stderr
+
+
+def test_sigterm_while_the_command_line_loads_still_leaves_a_junit_file(tmp_path):
+    # the console script records a stop signal before its heavy imports (modemverify._entry);
+    # sent while Python starts, the run then stops at once and still writes every device
+    import signal
+    import time
+
+    f = device_file(tmp_path, "early")
+    junit = tmp_path / "out.xml"
+    code = "import sys; from modemverify._entry import main; sys.exit(main(sys.argv[1:]))"
+    proc = subprocess.Popen([sys.executable, "-c", code, "check", str(f), "--junit",
+                             str(junit)], stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                            text=True)
+    time.sleep(0.05)  # inside the imports, or at worst early in the run: the same record
+    proc.send_signal(signal.SIGTERM)
+    out, err = proc.communicate(timeout=120)
+    assert proc.returncode == 130, out + err
+    assert "Traceback" not in err
+    suite = ET.parse(junit).getroot().find("testsuite")
+    assert suite.get("name") == "early"
+    props = {p.get("name"): p.get("value") for p in suite.iter("property")}
+    assert props["interrupted"].startswith("true")
+    assert {c.get("name") for c in suite.findall("testcase")} >= {"mapping", "length.modulate"}
