@@ -65,16 +65,21 @@ class Opt:
                                              (self.exclusive_minimum and x == self.minimum)):
                 rel = ">" if self.exclusive_minimum else ">="
                 raise ConfigError(f"{key.rsplit('.', 1)[-1]}={value!r}: expected a value "
-                                  f"{rel} {self.minimum:g}", file=file, key=key)
+                                  f"{rel} {_bound(self.minimum)}", file=file, key=key)
             if self.maximum is not None and x > self.maximum:
                 raise ConfigError(f"{key.rsplit('.', 1)[-1]}={value!r}: expected a value "
-                                  f"<= {self.maximum:g}", file=file, key=key)
+                                  f"<= {_bound(self.maximum)}", file=file, key=key)
         if self.check is not None:
             problem = self.check(v)
             if problem:
                 raise ConfigError(f"{key.rsplit('.', 1)[-1]}={value!r}: {problem}",
                                   file=file, key=key)
         return v
+
+
+def _bound(x: float) -> str:
+    """A range bound as a person reads it: whole numbers in full, others in %g."""
+    return str(int(x)) if float(x).is_integer() and abs(x) < 1e16 else f"{x:g}"
 
 
 def _is_number(x) -> bool:

@@ -45,5 +45,7 @@ def validate_checks(raw, spec, *, file: str | None) -> dict[str, dict | None]:
         given = raw.get(name)
         out[name] = None if given is False else validate_options(
             oracle.options, given, file=file, key=f"checks.{name}")
+        if out[name] is not None:
+            oracle.validate(out[name], spec, file=file)
     return out
 

@@ -45,6 +45,11 @@ class Oracle:
     #: a device without one of them gets a skipped verdict that names it
     requires: ClassVar[tuple[str, ...]] = ()
 
+    def validate(self, opts: dict, spec: DeviceSpec, *, file: str | None) -> None:
+        """Check options against the scheme when the device file is loaded (raise ConfigError
+        naming ``checks.<name>.<option>``); the options' own kinds and ranges are already
+        checked by their ``Opt``."""
+
     def verdict_names(self, spec: DeviceSpec) -> list[str]:
         """The names of the verdicts this check reports for ``spec``, in order.
 

@@ -39,6 +39,7 @@ import math
 import numpy as np
 
 from ..bench import Bench
+from ..errors import ConfigError
 from ..options import Opt
 from ..records import BerPointRecord
 from ..schemes.theory import THEORY_MODULATIONS, default_ebn0_points
@@ -114,10 +115,12 @@ class BerOracle(Oracle):
                           minimum=0.5, maximum=0.999999),
         "familywise": Opt("bool", True, "split the risk over the points (Bonferroni), so the "
                           "confidence holds for the whole check"),
-        "max_bits": Opt("number", 1e7, "bit budget per point", minimum=1e3),
+        "max_bits": Opt("number", 1e7, "bit budget per point (memory does not grow with it)",
+                        minimum=1e3, maximum=1e15),
         "block_bits": Opt("int", 1 << 19, "largest bits per device call; blocks start at "
                           "2^17 bits and double, so early decisions cost little (a multiple of "
-                          "8 x bits per symbol is used)", minimum=64),
+                          "8 x bits per symbol is used; at most 2^22)", minimum=64,
+                          maximum=1 << 22),
         "energy": Opt("choice", "nominal", "Es from the convention's normalisation (nominal) "
                       "or measured on the device's output (measured)",
                       choices=("nominal", "measured")),
@@ -142,6 +145,23 @@ class BerOracle(Oracle):
                             spec.scheme.modulation not in THEORY_MODULATIONS):
             return [self.name]  # no theory curve, no default points: one (skipped) verdict
         return [self.point_name(x) for x in self.points(spec, opts)]
+
+    def validate(self, opts, spec, *, file):
+        # a point whose theory BER (or limit) is near 0.5 (theory and limit then coincide) or
+        # below 1e-300 (it underflows: nothing could be decided) cannot be judged: refused
+        # here, so that no gate is silently off
+        mod = spec.scheme.modulation
+        if opts["ebn0_db"] is None or mod not in THEORY_MODULATIONS:
+            return
+        for x in opts["ebn0_db"]:
+            for at, what in ((x, "theory BER"), (x - opts["margin_db"], "the limit")):
+                with np.errstate(over="ignore"):
+                    p = float(theory_ber(mod, at))
+                if not 1e-300 < p <= 0.25:
+                    raise ConfigError(
+                        f"ebn0_db={x:g}: {what} for {mod} at {at:g} dB is {p:.3g}, which no bit "
+                        f"budget can judge; choose points where theory BER is between about "
+                        f"1e-1 and 1e-12", file=file, key=f"checks.{self.name}.ebn0_db")
 
     def applies(self, bench: Bench):
         mod = bench.convention.modulation

@@ -40,7 +40,8 @@ class EvmOracle(Oracle):
     options = {
         "limit_percent": Opt("number", None, "RMS EVM limit in % (default: TS 38.104 Table "
                              "6.5.2.2-1 for the modulation)", minimum=0, exclusive_minimum=True),
-        "symbols": Opt("int", 8192, "symbols in the probe", minimum=64),
+        "symbols": Opt("int", 8192, "symbols in the probe (64 to 2^20)", minimum=64,
+                       maximum=1 << 20),
     }
 
     def blocked_by(self, bench):

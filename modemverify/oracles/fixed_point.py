@@ -42,7 +42,8 @@ class FixedPointOracle(Oracle):
     summary = "integer-sample devices: clipping at the rails and SQNR against the reference"
     fresh_vectors = True
     options = {
-        "symbols": Opt("int", 8192, "symbols in the probe", minimum=256),
+        "symbols": Opt("int", 8192, "symbols in the probe (256 to 2^20)", minimum=256,
+                       maximum=1 << 20),
         "max_clipped": Opt("number", 1e-3, "largest fraction of samples at a rail", minimum=0,
                            maximum=1),
         "min_sqnr_db": Opt("number", None, "least SQNR in dB (default 40 for int16, 20 for "

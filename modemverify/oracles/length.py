@@ -27,9 +27,12 @@ class LengthOracle(Oracle):
     order = 20
     summary = "output length follows from input length"
     options = {
-        "symbols": Opt("list", DEFAULT_LENGTHS, "symbol counts to try",
-                       check=lambda v: None if v and all(isinstance(x, int) and x > 0 for x in v)
-                       else "expected a list of positive whole numbers"),
+        "symbols": Opt("list", DEFAULT_LENGTHS, "symbol counts to try (1 to 2^20 each, at "
+                       "most 256 of them)",
+                       check=lambda v: None if v and len(v) <= 256 and all(
+                           isinstance(x, int) and not isinstance(x, bool) and 0 < x <= 1 << 20
+                           for x in v)
+                       else "expected a list of at most 256 whole numbers from 1 to 2^20"),
     }
 
     def verdict_names(self, spec):

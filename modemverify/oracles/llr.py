@@ -76,7 +76,7 @@ class LlrOracle(Oracle):
     options = {
         "ebn0_db": Opt("number", None, "Eb/N0 of the test (default: where the reference BER "
                        "is about 1e-2)"),
-        "bits": Opt("int", 200_000, "bits sent", minimum=1000),
+        "bits": Opt("int", 200_000, "bits sent (1000 to 2^24)", minimum=1000, maximum=1 << 24),
         "scale_tolerance": Opt("number", 0.2, "allowed |s - 1| of the calibration scale",
                                minimum=0, exclusive_minimum=True),
         "mi_tolerance": Opt("number", 0.01, "allowed mutual-information shortfall, in bits per "

@@ -55,8 +55,10 @@ class RoundtripOracle(Oracle):
     fresh_vectors = True
     summary = "noiseless demodulate(modulate(bits)) returns the bits"
     options = {
-        "max_examples": Opt("int", 200, "hypothesis examples searched", minimum=1),
-        "max_symbols": Opt("int", 64, "longest hypothesis sequence, in symbols", minimum=1),
+        "max_examples": Opt("int", 200, "hypothesis examples searched (1 to 10000)", minimum=1,
+                            maximum=10_000),
+        "max_symbols": Opt("int", 64, "longest hypothesis sequence, in symbols (1 to 4096)",
+                           minimum=1, maximum=4096),
         "prbs": Opt("choice", "prbs15", "PRBS pattern for the fixed vectors (ITU-T O.150)",
                     choices=tuple(PRBS_PATTERNS)),
     }

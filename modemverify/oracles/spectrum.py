@@ -53,7 +53,8 @@ class SpectrumOracle(Oracle):
     summary = "99 % occupied bandwidth against the declared pulse; optional x-dB width, mask, ACLR"
     fresh_vectors = True
     options = {
-        "symbols": Opt("int", 1 << 15, "symbols in the record", minimum=1024),
+        "symbols": Opt("int", 1 << 15, "symbols in the record (1024 to 2^20)", minimum=1024,
+                       maximum=1 << 20),
         "obw_tolerance": Opt("number", 0.03, "allowed relative deviation of the 99 % "
                              "occupied bandwidth", minimum=0, exclusive_minimum=True),
         "x_db": Opt("number", 26.0, "level below the peak for the x-dB bandwidth", minimum=0,

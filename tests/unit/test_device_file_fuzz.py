@@ -17,6 +17,7 @@ from hypothesis import strategies as st
 from modemverify.config import COMMON_OPTIONS, SCHEME_OPTIONS, parse_device
 from modemverify.errors import ConfigError
 from modemverify.oracles import ORACLES
+from modemverify.schemes.theory import ber as theory_ber
 
 BASE = {"name": "fuzz", "adapter": "reference",
         "scheme": {"modulation": "16qam", "convention": "3gpp"}}
@@ -83,3 +84,8 @@ def test_odd_values_load_or_are_config_errors(place, value):
     assert all(math.isfinite(x) for x in _numbers(spec.checks)), spec.checks
     assert all(math.isfinite(x) for x in _numbers(vars(spec.scheme)) if x is not None)
     assert all(spec.checks[name] is not None for name in ORACLES)
+    # every BER point it asks for can be judged: theory BER and limit strictly inside (0, 0.5)
+    ber = spec.checks["ber"]
+    for x in ber["ebn0_db"] or []:
+        for at in (x, x - ber["margin_db"]):
+            assert 1e-300 < theory_ber(spec.scheme.modulation, at) < 0.5, (x, at)

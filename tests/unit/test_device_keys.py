@@ -59,6 +59,13 @@ def scheme(**changes):
     (scheme(samples_per_symbol=8, pulse={"shape": "rrc", "rolloff": 0.3, "span": 1e8}),
      "scheme.pulse.span", "expected a value <= 256"),
     (base(isolate=True, timeout_s=1e9), "timeout_s", "expected a value <= 3600"),
+    (base(checks={"evm": {"symbols": 3e8}}), "checks.evm.symbols", "expected a value <= 1048576"),
+    (base(checks={"length": {"symbols": [1, 1e9]}}), "checks.length.symbols",
+     "at most 256 whole numbers from 1 to 2^20"),
+    # an Eb/N0 point no bit budget can judge is refused at load, never skipped
+    (base(checks={"ber": {"ebn0_db": [1e300]}}), "checks.ber.ebn0_db", "which no bit budget"),
+    (base(checks={"ber": {"ebn0_db": [-300]}}), "checks.ber.ebn0_db", "theory BER for qpsk"),
+    (base(checks={"ber": {"ebn0_db": [8, 60]}}), "checks.ber.ebn0_db", "ebn0_db=60"),
     # adapter keys are declared by the adapter and validated by the same mechanism
     (base(adapter="python", target="m.py:M", sample_format="int12"), "sample_format",
      "expected one of complex128"),
