@@ -322,7 +322,12 @@ def mask_check(f, psd, mask_points) -> MaskResult:
     mask = mask_level_db(mask_points, f)
     db = 10.0 * np.log10(np.maximum(p, _DB_FLOOR) / p.max())
     margin = mask - db
-    worst = int(np.argmin(margin))
+    # the worst margin where the mask attenuates (below 0 dBc): in band, where the mask is
+    # 0 dBc and the PSD at its peak, the margin is about 0 whatever the device does, and would
+    # hide how close the skirts come (a violation anywhere still fails, below)
+    skirts = mask < 0
+    judged = np.flatnonzero(skirts) if skirts.any() else np.arange(margin.size)
+    worst = int(judged[np.argmin(margin[judged])])
     over = margin < 0
     violations = []
     if over.any():

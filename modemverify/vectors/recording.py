@@ -30,7 +30,7 @@ samples, taken in order from the payload. Paths are relative to the header and s
 folder (an absolute path, or one that climbs out with ``..``, is refused). ``.npy`` files are
 read with ``allow_pickle=False``, after their header is checked against the file's size (a
 header claiming more elements than the file holds is refused before anything is allocated);
-the header with ``yaml.safe_load``.
+the header as plain YAML data (:mod:`modemverify.datafile`).
 
 :func:`golden_vector_set` builds the golden sets that ``modemverify vectors export`` writes: the
 bits and the expected points of a published convention (3GPP TS 38.211 5.1, IEEE 802.11 OFDM
@@ -49,6 +49,7 @@ import numpy as np
 import yaml
 
 from .._version import __version__
+from ..datafile import read_yaml
 from ..dsp.formats import (
     SAMPLE_FORMATS,
     WIRE_FORMATS,
@@ -317,12 +318,7 @@ def read_vector_set(path: str | Path, *, verify: bool = True) -> VectorSet:
     """Read a vector-set header and its payload; raises ConfigError naming file and key."""
     path = Path(path)
     file = str(path)
-    try:
-        head = yaml.safe_load(path.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise ConfigError("no such vector-set header", file=file) from None
-    except (OSError, UnicodeDecodeError, yaml.YAMLError) as exc:
-        raise ConfigError(f"cannot read the vector-set header ({exc})", file=file) from None
+    head = read_yaml(path, what="vector-set header")  # plain data: see modemverify.datafile
     _need(isinstance(head, dict), "expected a mapping of keys", file, "format")
     _need(head.get("format") == FORMAT, f"format={head.get('format')!r}: expected {FORMAT!r}",
           file, "format")
