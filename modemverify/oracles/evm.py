@@ -15,6 +15,8 @@ pass here is a sanity bound, not that requirement met.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 from scipy import signal
 
@@ -81,7 +83,8 @@ class EvmOracle(Oracle):
         if bench.spec.scheme.shaped:
             details["eye"] = _eye_traces(bench, raw, n)
         worst_txt = ", ".join(f"{label_string(int(l), k)} {rms:.2f} %" for l, (_, rms) in worst)
-        text = (f"RMS EVM {res.rms_percent:.3f} % ({res.rms_db:.1f} dB), peak "
+        db = f"{res.rms_db:.1f} dB" if math.isfinite(res.rms_db) else "no error at all"
+        text = (f"RMS EVM {res.rms_percent:.3f} % ({db}), peak "
                 f"{res.peak_percent:.3f} % over {res.n_symbols} symbols; limit {limit:g} %")
         if res.rms_percent <= limit:
             return [Verdict(self.name, "pass", text, statistic=res.rms_percent, limit=limit,

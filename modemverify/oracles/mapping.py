@@ -13,6 +13,7 @@ import numpy as np
 
 from ..options import Opt
 from ..records import MappingRecord
+from ..schemes.conventions import conventions_for
 from ..schemes.labels import label_string
 from ..schemes.transforms import DEFAULT_TOLERANCE, differing_labels, explain_difference
 from ..verdict import Verdict
@@ -71,6 +72,13 @@ class MappingOracle(Oracle):
                             statistic=0.0, limit=tol, seed=seed, details=details)]
         reason, rels = explain_difference(conv.points, table.points, bad, gain, k, tol,
                                           name=conv.name)
+        exactly = [other.name for other in conventions_for(conv.modulation)
+                   if other.name != conv.name
+                   and not differing_labels(other.points, table.points, tol)[1]]
+        if exactly:
+            reason += (f"; the device table is exactly the {' and the '.join(exactly)} "
+                       f"table{'s' if len(exactly) > 1 else ''}: claim "
+                       f"scheme.convention: {exactly[0]} if that is what it should be")
         details["relation"] = [r.to_json() for r in rels]
         l0 = bad[0]
         ce = (f"bits={list(map(int, label_string(l0, k)))} -> "
