@@ -13,7 +13,7 @@ import os
 import sys
 
 from ._version import __version__
-from .config import load_device
+from .config import load_device, parse_device
 from .demo import run_demo
 from .errors import AdapterError, ConfigError, UnknownNameError
 from .identify import identify
@@ -236,8 +236,16 @@ def _compare(args, a, b) -> int:
 def cmd_checks(args) -> int:
     print("Every check that applies runs; set checks.<name>: false in a device file to turn one "
           "off, or give options:")
+    # the names a 16QAM device with an RRC pulse gets (the BER points follow the modulation)
+    example = parse_device({"name": "example", "adapter": "reference",
+                            "scheme": {"modulation": "16qam", "convention": "3gpp",
+                                       "samples_per_symbol": 8,
+                                       "pulse": {"shape": "rrc", "rolloff": 0.35, "span": 10}}})
     for name, oracle in ORACLES.items():
         print(f"\n{name}: {oracle.summary}")
+        names = oracle.verdict_names(example)
+        print(f"  verdicts: {', '.join(names)}"
+              + (" (one per Eb/N0 point; these for 16qam's defaults)" if name == "ber" else ""))
         for key, opt in oracle.options.items():
             default = "auto" if opt.default is None else opt.default
             print(f"  {key} (default {default!r}): {opt.help}")
