@@ -17,7 +17,7 @@ except ImportError:  # pragma: no cover - Python 3.10
 
 __all__ = [
     "MappingRecord", "EyeRecord", "EvmRecord", "BerPointRecord", "MaskRecord",
-    "SpectrumRecord", "CompareEvmRecord", "CompareSpectrumRecord",
+    "SpectrumRecord", "CompareEvmRecord", "CompareSpectrumRecord", "SoftOutputRecord",
 ]
 
 
@@ -124,3 +124,18 @@ class CompareSpectrumRecord(TypedDict):
     psd_b_db: list[float]
     #: the level below A's peak under which the difference is not judged
     floor_db: float
+
+
+class SoftOutputRecord(TypedDict):
+    """``llr.sign``: the device's LLRs (in the positive-means-bit-0 convention) as histograms
+    per transmitted bit value, and the calibration curve."""
+
+    #: 61 bin edges and the counts of LLRs of bits sent as 0 and as 1
+    edges: list[float]
+    bit0: list[int]
+    bit1: list[int]
+    #: LLR bin centres and log(bits sent as 0 / bits sent as 1) in each (bins of >= 50 bits)
+    centres: list[float]
+    empirical: list[float]
+    #: on a partial sign failure: the share of agreeing signs per label bit
+    per_bit_agreement: NotRequired[list[float]]

@@ -32,6 +32,7 @@ from scipy import optimize, special
 
 from ..bench import Bench
 from ..options import Opt
+from ..records import SoftOutputRecord
 from ..schemes.theory import THEORY_MODULATIONS, default_ebn0_points
 from ..vectors.bits import random_bits
 from ..vectors.channels import Awgn
@@ -39,7 +40,7 @@ from ..verdict import Verdict
 from ._table import claimed_table_failed
 from .base import Oracle
 
-__all__ = ["PARTS", "mutual_information", "best_scale", "LlrOracle", "ORACLE"]
+__all__ = ["PARTS", "mutual_information", "best_scale", "LlrOracle", "ORACLE", "soft_record"]
 
 #: the verdicts of the check, ``llr.<part>``, in order
 PARTS = ("sign", "calibration", "mutual_information")
@@ -65,6 +66,29 @@ def best_scale(llr: np.ndarray, bits: np.ndarray) -> tuple[float, float]:
     p = special.expit(s * sign * llr)
     info = float(np.sum(llr ** 2 * p * (1 - p)))
     return s, (1 / math.sqrt(info) if info > 0 else math.inf)
+
+
+def soft_record(llr: np.ndarray, bits: np.ndarray) -> SoftOutputRecord:
+    """Histograms of the LLRs per transmitted bit value, and the calibration curve: in bins of
+    the LLR, the log-ratio of bits sent as 0 to bits sent as 1 (positive LLR = bit 0). A
+    calibrated demapper's curve lies on the diagonal (common practice: an LLR is calibrated
+    when L = log P(b=0 | L) / P(b=1 | L))."""
+    finite = np.isfinite(llr)
+    x, b = llr[finite], bits[finite]
+    lim = float(np.percentile(np.abs(x), 99.5)) if x.size else 1.0
+    lim = lim if lim > 0 else 1.0
+    edges = np.linspace(-lim, lim, 61)
+    h0 = np.histogram(x[b == 0], edges)[0]
+    h1 = np.histogram(x[b == 1], edges)[0]
+    cal = np.linspace(-lim, lim, 25)
+    idx = np.clip(np.digitize(x, cal) - 1, 0, cal.size - 2)
+    n0 = np.bincount(idx[b == 0], minlength=cal.size - 1)
+    n1 = np.bincount(idx[b == 1], minlength=cal.size - 1)
+    keep = (n0 + n1) >= 50  # enough bits in the bin to estimate the ratio
+    centres = (cal[:-1] + cal[1:]) / 2
+    empirical = np.log((n0 + 0.5) / (n1 + 0.5))
+    return {"edges": edges.tolist(), "bit0": h0.tolist(), "bit1": h1.tolist(),
+            "centres": centres[keep].tolist(), "empirical": empirical[keep].tolist()}
 
 
 class LlrOracle(Oracle):
@@ -127,19 +151,20 @@ class LlrOracle(Oracle):
         confident = np.abs(ref) > 1.0
         agree = float(np.mean(np.sign(llr[confident]) == np.sign(ref[confident]))) \
             if confident.any() else math.nan
+        soft = soft_record(llr, bits)
         if agree >= 0.9:
             yield Verdict("llr.sign", "pass",
                           f"positive LLR means bit {declared}, as declared: signs agree with "
                           f"the reference demapper on {agree:.1%} of confident bits "
                           f"{where}{at_scale}", statistic=agree, limit=0.9, unit="agreement",
-                          seed=seed)
+                          seed=seed, details=soft)
         else:
             if agree <= 0.1:
                 reason = (f"LLR sign is flipped: a positive LLR means bit {1 - declared}, but "
                           f"the device file declares {declared} (signs disagree with the "
                           f"reference on {1 - agree:.1%} of confident bits {where}{at_scale}); "
                           f"fix the device or set scheme.llr_positive_bit: {1 - declared}")
-                details = {}
+                details = dict(soft)
             else:
                 per_bit = [float(np.mean(np.sign(llr.reshape(-1, k)[:, i]) ==
                                          np.sign(ref.reshape(-1, k)[:, i]))) for i in range(k)]
@@ -147,7 +172,7 @@ class LlrOracle(Oracle):
                           f"confident bits {where}{at_scale}: some label bits are flipped or "
                           f"reordered (agreement per label bit: "
                           f"{', '.join(f'b{i} {a:.0%}' for i, a in enumerate(per_bit))})")
-                details = {"per_bit_agreement": per_bit}
+                details = {**soft, "per_bit_agreement": per_bit}
             yield Verdict("llr.sign", "fail", reason, statistic=agree, limit=0.9,
                           unit="agreement", seed=seed, details=details)
             why = ("not judged because llr.sign failed: calibration and information are "

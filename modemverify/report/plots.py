@@ -18,13 +18,14 @@ from ..records import (
     CompareSpectrumRecord,
     EvmRecord,
     MappingRecord,
+    SoftOutputRecord,
     SpectrumRecord,
 )
 from ..schemes.theory import ber as theory_ber
 
 __all__ = [
     "Figure", "constellation_plot", "waterfall_plot", "psd_plot", "eye_plot", "PLOTTERS",
-    "per_label_evm_plot", "compare_plots",
+    "per_label_evm_plot", "compare_plots", "soft_output_plot",
 ]
 
 
@@ -297,5 +298,43 @@ def compare_plots(result, folder: Path, stem: str) -> list[Figure]:
     return out
 
 
+def soft_output_plot(result, folder: Path, stem: str) -> list[Figure]:
+    """LLR histograms per transmitted bit value, and the calibration curve."""
+    v = next((v for v in result.verdicts if v.name == "llr.sign" and "edges" in v.details),
+             None)
+    if v is None:
+        return []
+    d = cast(SoftOutputRecord, v.details)
+    edges = np.array(d["edges"])
+    centres = (edges[:-1] + edges[1:]) / 2
+    plt = _pyplot()
+    fig, (left, right) = plt.subplots(1, 2, figsize=(10, 4), dpi=100)
+    width = edges[1] - edges[0]
+    left.bar(centres, d["bit0"], width=width, alpha=0.55, color="tab:blue", label="bit sent 0")
+    left.bar(centres, d["bit1"], width=width, alpha=0.55, color="tab:orange",
+             label="bit sent 1")
+    left.set_xlabel("device LLR (positive = bit 0)")
+    left.set_ylabel("bits")
+    left.legend(fontsize=8)
+    left.set_title("LLR histograms per bit value")
+    lim = float(edges[-1])
+    right.plot([-lim, lim], [-lim, lim], color="0.6", ls="--", lw=1, label="calibrated")
+    right.plot(d["centres"], d["empirical"], marker="o", ms=3, color="tab:red",
+               label="measured")
+    right.set_xlabel("device LLR")
+    right.set_ylabel("log(bits sent as 0 / bits sent as 1)")
+    right.legend(fontsize=8)
+    right.grid(True, alpha=0.3)
+    right.set_title("calibration")
+    fig.suptitle(f"{result.subject.name}: soft outputs ({v.outcome.upper()} llr.sign)",
+                 fontsize=10)
+    name = _save(plt, fig, folder, f"{stem}-llr.png")
+    return [Figure("Soft outputs", name, "Left: the device's LLRs for bits sent as 0 and as 1 "
+                   "(well separated, and on the correct sides of 0, for a good demapper). "
+                   "Right: in bins of the LLR, the log-ratio of bits sent as 0 to bits sent as "
+                   "1; a calibrated LLR lies on the dashed diagonal, an over-confident one is "
+                   "flatter, a sign-flipped one falls.")]
+
+
 PLOTTERS = [constellation_plot, per_label_evm_plot, waterfall_plot, psd_plot, eye_plot,
-            compare_plots]
+            soft_output_plot, compare_plots]

@@ -10,9 +10,11 @@ from __future__ import annotations
 import pytest
 from test_waveforms import RrcModem, run
 
-from modemverify.records import BerPointRecord, EvmRecord, MappingRecord, SpectrumRecord
+from modemverify.records import (BerPointRecord, EvmRecord, MappingRecord, SoftOutputRecord,
+                                 SpectrumRecord)
 
-RECORDS = {"mapping": MappingRecord, "evm": EvmRecord, "spectrum.obw": SpectrumRecord}
+RECORDS = {"mapping": MappingRecord, "evm": EvmRecord, "spectrum.obw": SpectrumRecord,
+           "llr.sign": SoftOutputRecord}
 
 
 def _record_for(name):
@@ -26,7 +28,7 @@ def test_every_record_has_exactly_its_declared_keys(swap):
             return super().modulate(1 - bits)
 
     v, _ = run(Inverted() if swap else RrcModem(),
-               checks={"spectrum": {"mask": [[0.7, 0], [1.0, -30]]}})
+               checks={"spectrum": {"mask": [[0.7, 0], [1.0, -30]]}, "llr": {"bits": 20000}})
     checked = 0
     for name, verdict in v.items():
         record = _record_for(name)

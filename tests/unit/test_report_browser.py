@@ -27,7 +27,7 @@ pytestmark = pytest.mark.skipif(CHROMIUM is None, reason="headless Chromium is n
 RRC = {"modulation": "16qam", "convention": "3gpp", "samples_per_symbol": 8,
        "pulse": {"shape": "rrc", "rolloff": 0.35, "span": 10}}
 FAST = {"ber": {"ebn0_db": [10.0], "max_bits": 2e5}, "roundtrip": {"max_examples": 20},
-        "llr": False}
+        "llr": {"bits": 20000}}
 
 
 def _chromium(url: str, *extra: str, tmp: Path) -> subprocess.CompletedProcess:
@@ -59,7 +59,8 @@ def test_report_renders_with_summary_and_every_figure(tmp_path):
     figures = re.findall(r'<img src="([^"]+)"', dom)
     names = {Path(f).name for f in figures}
     assert {"shaped-ref-constellation.png", "shaped-ref-psd.png", "shaped-ref-eye.png",
-            "shaped-ref-evm-labels.png", "shaped-ref-ber.png", "a-vs-a-ab-psd.png",
+            "shaped-ref-evm-labels.png", "shaped-ref-ber.png", "shaped-ref-llr.png",
+            "a-vs-a-ab-psd.png",
             "a-vs-a-ab-error.png"} <= names
     for f in figures:
         data = (index.parent / f).read_bytes()
