@@ -47,6 +47,10 @@ def load_target(target: str, base_dir: Path, *, file: str | None = None):
         spec = importlib.util.spec_from_file_location(mod_name, path)
         module = importlib.util.module_from_spec(spec)
         sys.modules[mod_name] = module
+        # the device's own folder is importable, so FILE.py can import a module beside it
+        folder = str(path.resolve().parent)
+        if folder not in sys.path:
+            sys.path.append(folder)
         try:
             spec.loader.exec_module(module)
         except Exception as exc:

@@ -11,11 +11,19 @@ and every element towards 0, so the minimal counterexample for "any bit is 1" is
 
 from __future__ import annotations
 
+import os
 from functools import partial
 
 import numpy as np
-from hypothesis import strategies as st
-from hypothesis.extra.numpy import arrays
+
+# hypothesis keeps a cache folder (".hypothesis") in the working folder by default: a user's
+# checkout is not ours to write into, so it goes to the user's cache unless they chose a place
+os.environ.setdefault("HYPOTHESIS_STORAGE_DIRECTORY", os.path.join(
+    os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache"),
+    "modemverify", "hypothesis"))
+
+from hypothesis import strategies as st  # noqa: E402
+from hypothesis.extra.numpy import arrays  # noqa: E402
 
 from modemverify.options import whole_number as _check_int
 from modemverify.schemes.labels import labels_to_bits

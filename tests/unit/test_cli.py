@@ -147,3 +147,27 @@ def test_sigterm_while_the_command_line_loads_still_leaves_a_junit_file(tmp_path
     props = {p.get("name"): p.get("value") for p in suite.iter("property")}
     assert props["interrupted"].startswith("true")
     assert {c.get("name") for c in suite.findall("testcase")} >= {"mapping", "length.modulate"}
+
+
+def test_a_python_target_imports_its_sibling_and_no_cache_is_left_in_the_working_folder(
+        tmp_path):
+    dev = tmp_path / "dev"
+    dev.mkdir()
+    (dev / "helper.py").write_text("SCALE = 1.0\n")
+    (dev / "modem.py").write_text(
+        "import helper\nfrom modemverify.schemes.conventions import get_convention\n"
+        "from modemverify.schemes.labels import bits_to_labels\nclass M:\n"
+        "    def modulate(self, bits):\n        return helper.SCALE * get_convention("
+        "'3gpp', 'qpsk').points[bits_to_labels(bits, 2)]\n")
+    (dev / "d.yaml").write_text("name: sib\nadapter: python\ntarget: modem.py:M\n"
+                                "scheme: {modulation: qpsk, convention: 3gpp}\n"
+                                "checks: {ber: false, roundtrip: {max_examples: 10}}\n")
+    work = tmp_path / "work"
+    work.mkdir()
+    proc = subprocess.run([sys.executable, "-m", "modemverify.cli", "check", str(dev / "d.yaml")],
+                          capture_output=True, text=True, timeout=300, cwd=work,
+                          env={k: v for k, v in __import__("os").environ.items()
+                               if k != "HYPOTHESIS_STORAGE_DIRECTORY"}
+                          | {"XDG_CACHE_HOME": str(tmp_path / "cache")})
+    assert proc.returncode == 0, proc.stdout + proc.stderr
+    assert list(work.iterdir()) == []  # no .hypothesis folder in the user's working folder

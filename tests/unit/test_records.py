@@ -10,8 +10,13 @@ from __future__ import annotations
 import pytest
 from test_waveforms import RrcModem, run
 
-from modemverify.records import (BerPointRecord, EvmRecord, MappingRecord, SoftOutputRecord,
-                                 SpectrumRecord)
+from modemverify.records import (
+    BerPointRecord,
+    EvmRecord,
+    MappingRecord,
+    SoftOutputRecord,
+    SpectrumRecord,
+)
 
 RECORDS = {"mapping": MappingRecord, "evm": EvmRecord, "spectrum.obw": SpectrumRecord,
            "llr.sign": SoftOutputRecord}
