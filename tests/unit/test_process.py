@@ -13,13 +13,13 @@ import os
 import subprocess
 import sys
 import textwrap
-import time
 from pathlib import Path
 
 import numpy as np
 import pytest
 import yaml
 from _cmodems import CC, build_program, needs_cc, write_device
+from _procs import all_gone
 
 from modemverify.adapters import _wire
 from modemverify.adapters.base import GuardedDevice
@@ -404,21 +404,6 @@ def test_env_names_and_values_the_system_cannot_hold_are_refused(tmp_path, env, 
     assert info.value.key == key
 
 
-def _alive(pid: int) -> bool:
-    """True while ``pid`` runs (a zombie has ended; the container's init may never reap it)."""
-    try:
-        state = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()[0]
-    except (FileNotFoundError, ProcessLookupError):
-        return False
-    return state not in ("Z", "X")
-
-
-def _all_gone(pids, wait_s: float = 30.0) -> list[int]:
-    """The pids still running after waiting up to ``wait_s`` for SIGKILLs to land."""
-    deadline = time.monotonic() + wait_s
-    while (left := [p for p in pids if _alive(p)]) and time.monotonic() < deadline:
-        time.sleep(0.05)
-    return left
 
 
 def shell_wrapped(tmp_path: Path, mode: str, **extra) -> tuple[Path, Path]:
@@ -448,7 +433,7 @@ def test_a_timeout_kills_what_a_shell_wrapped_device_started(tmp_path):
             adapter.modulate(np.zeros(200, np.uint8))
         started = sorted(set(_pids(pids)))  # the helper (sleep) and the device (python)
         assert len(started) == 2
-        assert _all_gone([shell, *started]) == []
+        assert all_gone([shell, *started]) == []
     finally:
         adapter.close()
 
@@ -461,7 +446,7 @@ def test_after_a_run_no_process_the_device_started_is_alive(tmp_path):
     assert result.ok, [(v.name, v.reason) for v in result.verdicts]
     started = _pids(pids)
     assert len(started) == 2
-    assert _all_gone(started) == []
+    assert all_gone(started) == []
 
 
 def test_a_protocol_error_during_the_search_is_an_error_not_a_fail(tmp_path):
