@@ -11,7 +11,7 @@ earlier ones.
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
-from typing import Callable
+from typing import Any, Callable
 
 import numpy as np
 
@@ -47,6 +47,15 @@ class Bench:
     #: the verdicts judged on this bench so far, by name (the runner records each one as it
     #: exists; a check that depends on an earlier verdict reads it here)
     verdicts: dict[str, Verdict] = field(default_factory=dict)
+    #: what computes the BER check's blocks (``blocks.Engine``); None: this bench, in process
+    engine: Any = None
+    #: where a BER campaign keeps its state (``blocks.Journal``); None: nowhere
+    journal: Any = None
+    #: ``warn(text)``: a warning before a long check spends its budget (the command line prints
+    #: it at once and keeps it with the device's result)
+    warn: Callable[[str], None] = field(default=lambda text: None)
+    #: seconds a BER check should take at most; it warns when it will likely take longer
+    time_budget_s: float | None = None
 
     @property
     def k(self) -> int:

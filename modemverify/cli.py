@@ -16,8 +16,10 @@ from ._version import __version__
 from .config import load_device, parse_device
 from .demo import run_demo
 from .errors import AdapterError, ConfigError, UnknownNameError
+from .execution import INSTALL_HINT, Execution, dask_available
 from .identify import identify
 from .oracles import ORACLES
+from .plan import plan, render_plan
 from .report.outputs import OutputLock, check_output_file, check_output_folder
 from .runner import DEFAULT_SEED
 from .schemes.conventions import CONVENTIONS, MODULATIONS
@@ -33,7 +35,7 @@ from .session import (
 from .vectors.recording import SHIPPED_SETS, export_golden
 
 __all__ = [
-    "build_parser", "main", "cmd_check", "cmd_theory", "cmd_compare", "cmd_checks",
+    "build_parser", "cmd_plan", "main", "cmd_check", "cmd_theory", "cmd_compare", "cmd_checks",
     "cmd_identify", "cmd_vectors_export", "cmd_demo",
 ]
 
@@ -54,6 +56,40 @@ def _seed(text: str) -> int:
     return value
 
 
+def _workers(text: str):
+    if text == "auto":
+        return text
+    try:
+        value = int(text)
+    except ValueError:
+        value = 0
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"--workers={text!r}: expected a whole number >= 1, "
+                                         f"or auto")
+    return value
+
+
+def _seconds(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        value = -1.0
+    if not (value > 0 and value < float("inf")):
+        raise argparse.ArgumentTypeError(f"--time-budget={text!r}: expected a number of "
+                                         f"seconds > 0")
+    return value
+
+
+def _execution_options(parser) -> None:
+    parser.add_argument("--workers", type=_workers, metavar="N",
+                        help="run the BER check's blocks on N local worker processes, or "
+                             "auto for the cores available (the verdicts do not change)")
+    parser.add_argument("--cluster", metavar="ADDRESS",
+                        help="run the BER check's blocks on a Dask scheduler "
+                             "(tcp://host:8786), or local for a LocalCluster of --workers "
+                             "processes; needs pip install 'modemverify[cluster]'")
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog="modemverify", description="Verify a modem implementation against "
                 "published conventions and theory.")
@@ -68,6 +104,22 @@ def build_parser() -> argparse.ArgumentParser:
                    help=f"seed of every random draw (default {DEFAULT_SEED})")
     c.add_argument("--only", metavar="CHECK", action="append",
                    help="run only this check (repeatable)")
+    _execution_options(c)
+    c.add_argument("--time-budget", type=_seconds, metavar="SECONDS",
+                   help="warn when the BER check will likely take longer than this")
+    c.add_argument("--campaign", metavar="FILE",
+                   help="keep the BER campaign's state here (default: campaign.json in the "
+                        "--report folder)")
+    c.add_argument("--resume", action="store_true",
+                   help="continue an interrupted BER campaign from its campaign file (the "
+                        "same device files, seed and modemverify version)")
+
+    pl = sub.add_parser("plan", help="what the BER check will cost: expected bits and time "
+                        "per Eb/N0 point, from a short probe of the device")
+    pl.add_argument("devices", nargs="+", metavar="DEVICE.yaml")
+    pl.add_argument("--workers", type=_workers, metavar="N",
+                    help="plan for N worker processes, or auto for the cores available "
+                         "(default: the device file's execution.workers)")
 
     i = sub.add_parser("identify", help="describe a device's mapping without a claim")
     i.add_argument("device", metavar="DEVICE.yaml")
@@ -134,7 +186,7 @@ def main(argv: list[str] | None = None, *, signal_before: int | None = None) -> 
     """
     args = build_parser().parse_args(argv)
     args.signal_before = signal_before
-    commands = {"check": cmd_check, "identify": cmd_identify, "compare": cmd_compare,
+    commands = {"check": cmd_check, "plan": cmd_plan, "identify": cmd_identify, "compare": cmd_compare,
                 "checks": cmd_checks, "theory": cmd_theory, "vectors": cmd_vectors_export,
                 "demo": cmd_demo}
     try:
@@ -160,11 +212,31 @@ def cmd_check(args) -> int:
     for name in args.only or []:
         if name not in ORACLES:
             raise UnknownNameError("check", name, ORACLES, key="--only")
+    if args.cluster is not None and not dask_available():
+        raise ConfigError(f"--cluster {args.cluster}: a Dask cluster needs the optional "
+                          f"extra: {INSTALL_HINT}", key="--cluster")
+    if args.campaign:
+        check_output_file(args.campaign, "--campaign")
     with _outputs(args):  # the files are loaded inside, under the signal handler
         _, code = run_and_report(args.devices, seed=args.seed, only=args.only,
                                  junit=args.junit, report=args.report,
-                                 signal_before=args.signal_before)
+                                 signal_before=args.signal_before, workers=args.workers,
+                                 cluster=args.cluster, time_budget_s=args.time_budget,
+                                 campaign=args.campaign, resume=args.resume)
     return code
+
+
+def cmd_plan(args) -> int:
+    worst = EXIT_OK
+    for path in args.devices:
+        spec = load_device(path)
+        workers = Execution.of(spec, workers=args.workers).workers
+        try:
+            print(render_plan(plan(spec, workers=workers)), flush=True)
+        except AdapterError as exc:
+            print(f"{spec.name}: the device failed on the probe: {exc}", flush=True)
+            worst = EXIT_FAIL
+    return worst
 
 
 @contextlib.contextmanager

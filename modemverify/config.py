@@ -20,7 +20,7 @@ from .schemes.conventions import CONVENTIONS, MODULATIONS, get_convention
 from .spec import DEFAULT_TIMEOUT_S, DeviceSpec, SchemeSpec
 
 __all__ = [
-    "COMMON_OPTIONS", "SCHEME_OPTIONS", "PULSE_OPTIONS", "ALIGNMENT_OPTIONS", "load_device",
+    "COMMON_OPTIONS", "EXECUTION_OPTIONS", "SCHEME_OPTIONS", "PULSE_OPTIONS", "ALIGNMENT_OPTIONS", "load_device",
     "parse_device", "MAX_SAMPLES_PER_SYMBOL",
 ]
 
@@ -57,6 +57,20 @@ COMMON_OPTIONS: dict[str, Opt] = {
     "timeout_s": Opt("number", DEFAULT_TIMEOUT_S, "per-call timeout in seconds for a device "
                      "out of the harness's process (at most an hour)", minimum=0,
                      exclusive_minimum=True, maximum=3600),
+    "execution": Opt("mapping", None, "where the BER check's blocks run: {workers, cluster, "
+                     "upload, time_budget_s} (default: one process)", also=(None,)),
+}
+
+#: keys of ``execution:`` (the command line's --workers, --cluster and --time-budget win)
+EXECUTION_OPTIONS: dict[str, Opt] = {
+    "workers": Opt("int", 1, "worker processes for the BER check's blocks (auto: the cores "
+                   "available)", minimum=1, maximum=1024, also=("auto",)),
+    "cluster": Opt("str", None, "a Dask scheduler address (tcp://host:8786), or local for a "
+                   "LocalCluster of the workers; needs pip install 'modemverify[cluster]'",
+                   expected="an address such as tcp://host:8786, or local", check=_non_empty),
+    "upload": Opt("bool", False, "upload a single-file python target to the cluster's workers"),
+    "time_budget_s": Opt("number", None, "warn when the BER check will likely take longer "
+                         "than this many seconds", minimum=0, exclusive_minimum=True),
 }
 
 SCHEME_OPTIONS: dict[str, Opt] = {
@@ -141,7 +155,9 @@ def parse_device(data: Any, *, file: str | None = None,
         target=opts["target"], params=opts["params"] or {}, checks={},
         fail_on_inconclusive=opts["fail_on_inconclusive"], isolate=isolate,
         timeout_s=opts["timeout_s"], description=opts["description"], file=file,
-        base_dir=base_dir or Path.cwd(), extra={k: opts[k] for k in own if k in data})
+        base_dir=base_dir or Path.cwd(), extra={k: opts[k] for k in own if k in data},
+        execution=validate_options(EXECUTION_OPTIONS, opts["execution"], file=file,
+                                   key="execution"))
     spec.checks = validate_checks(opts["checks"], spec, file=file)
     adapter_cls.validate_spec(spec)
     return spec

@@ -80,6 +80,10 @@ class BerPointRecord(TypedDict):
     energy: str
     sides: str
     impairments: str
+    #: precision of the noise drawn: ``float32`` or ``float64``
+    noise: str
+    #: blocks of the schedule used (blocks.block_schedule)
+    blocks: int
 
 
 class MaskRecord(TypedDict):

@@ -24,7 +24,8 @@ from ._version import __version__
 from .adapters.python import PythonAdapter
 from .bench import Bench, open_bench
 from .config import load_device, parse_device
-from .errors import AdapterError
+from .blocks import Unavailable
+from .errors import AdapterError, ModemVerifyError
 from .oracles import ORACLES
 from .spec import DeviceSpec, SchemeSpec
 from .text import clean
@@ -196,7 +197,7 @@ def expected_names(spec: DeviceSpec, only: list[str] | None = None) -> list[str]
 
 def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
           only: list[str] | None = None, on_verdict=None, adapter=None,
-          progress=None) -> RunResult:
+          progress=None, execution=None, journal=None, warn=None) -> RunResult:
     """Run every check that applies to ``device`` and return the verdicts.
 
     Parameters
@@ -214,6 +215,14 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
         An adapter already open; by default the spec's adapter opens the device.
     progress : callable, optional
         ``progress(name, fraction, text)`` for long checks (the command line's progress bar).
+    execution : modemverify.execution.Execution, optional
+        Where the BER check's blocks run (workers, a Dask cluster); default: this process.
+        The verdicts are the same either way.
+    journal : modemverify.blocks.Journal, optional
+        Where a BER campaign keeps its state (``execution.CampaignFile`` for ``--resume``).
+    warn : callable, optional
+        ``warn(text)``: warnings before a long check spends its budget (also kept in the
+        result's notes).
 
     Raises
     ------
@@ -239,10 +248,19 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
             if on_verdict:
                 on_verdict(v)
 
+    notes: list[str] = []
+
+    def warned(text):
+        notes.append(f"warning: {text}")
+        if warn is not None:
+            warn(text)
+
     try:
         bench = open_bench(spec, adapter)
         if progress is not None:
             bench.progress = progress
+        bench.warn = warned
+        bench.journal = journal
     except AdapterError as exc:
         # every verdict the device file promises, as an error: the names do not change
         emit(not_judged(expected_names(spec, only), "error",
@@ -255,11 +273,35 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
             if opts is None or (only and name not in only):
                 continue
             bench.progress(name, 0.0, "running")
+            if oracle.parallel and execution is not None:
+                _start_engine(bench, execution, adapter, warned)
             emit(run_oracle(oracle, bench, opts, seed))
     finally:
-        bench.device.close()
+        try:
+            if bench.engine is not None:
+                bench.engine.close()
+        finally:
+            bench.device.close()
     return RunResult(Subject.of(spec), verdicts, seed, time.perf_counter() - t0,
-                     device_time_s=bench.device.device_time_s, only=tuple(only or ()))
+                     device_time_s=bench.device.device_time_s, only=tuple(only or ()),
+                     notes=notes)
+
+
+def _start_engine(bench: Bench, execution, adapter, warned) -> None:
+    """Give the bench the engine ``execution`` asks for (once): the BER check's workers."""
+    bench.time_budget_s = execution.time_budget_s
+    if bench.engine is not None or execution.in_process:
+        return
+    if adapter is not None:
+        warned(f"{execution.describe()} asked for, but this device was given as a Python "
+               f"object, which workers cannot open: the blocks run in this process")
+        return
+    try:
+        bench.engine = execution.engine(bench)
+    except ModemVerifyError as exc:  # no cluster there, the device fails its probe: the
+        # check's points get error verdicts that say so
+        bench.engine = Unavailable(f"{execution.describe()} could not start: "
+                                   f"{getattr(exc, 'raw_message', exc)}")
 
 
 def check_object(device, *, modulation: str, convention: str, samples_per_symbol: int = 1,

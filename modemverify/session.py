@@ -28,7 +28,8 @@ from pathlib import Path
 
 from .compare import compare, comparison_subject
 from .config import load_device
-from .errors import Interrupted
+from .errors import ConfigError, Interrupted
+from .execution import CAMPAIGN_FILE, CampaignFile, Execution
 from .report.console import render_header, render_summary, render_totals, render_verdict
 from .report.html import write_report
 from .report.junit import write_junit
@@ -175,7 +176,8 @@ def _finish(results, guard, junit, report, stream, bar) -> None:
 
 
 def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=None,
-                   signal_before=None):
+                   signal_before=None, workers=None, cluster=None, time_budget_s=None,
+                   campaign=None, resume=False):
     """Run the devices, print their blocks live, write JUnit and the report; return (results,
     exit code).
 
@@ -185,6 +187,11 @@ def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=No
     skipped. ``signal_before``: a signal number that arrived before this call (an entry point
     that recorded it while Python started): the run stops at once, with the same record. The
     exit code is 130 after an interrupt, else 0 when every verdict passed, else 1.
+
+    ``workers``, ``cluster`` and ``time_budget_s`` override each device file's ``execution:``
+    (:class:`~modemverify.execution.Execution`). A BER campaign keeps its state in
+    ``campaign`` (a path), or in ``REPORT/campaign.json`` with a report; ``resume`` continues
+    from it (a file of another version, seed or device-file content raises ConfigError).
     """
     with Interrupts() as guard:  # before anything slow
         stream = stream or sys.stdout
@@ -192,12 +199,16 @@ def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=No
             if signal_before is not None:
                 guard.handle(signal_before)
             specs = [s if isinstance(s, DeviceSpec) else load_device(s) for s in specs]
+            journal = _campaign(specs, seed, campaign, report, resume)
+            runs = {id(spec): Execution.of(spec, workers=workers, cluster=cluster,
+                                           time_budget_s=time_budget_s) for spec in specs}
         bar = ProgressLine() if ProgressLine.wanted() else None
         results: list[RunResult] = []
         try:
             for spec in specs:
                 guard.check()
-                _run_one(spec, guard, seed, only, stream, bar, results)
+                _run_one(spec, guard, seed, only, stream, bar, results, runs[id(spec)],
+                         journal)
                 if junit:
                     with guard.deferred():
                         write_junit(results, junit)
@@ -208,6 +219,8 @@ def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=No
             guard.hold()  # an exception other than an interrupt still leaves the record
             if guard.fired:
                 results = _complete(results, specs, guard, seed, only)
+            if journal is not None:
+                journal.flush()
             _write_record(results, junit, report)
             _finish(results, guard, junit, report, stream, bar)
     if guard.fired:
@@ -215,12 +228,35 @@ def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=No
     return results, (EXIT_OK if all(r.ok for r in results) else EXIT_FAIL)
 
 
-def _run_one(spec, guard: Interrupts, seed, only, stream, bar, results) -> None:
+def _campaign(specs, seed, campaign, report, resume) -> CampaignFile | None:
+    """The campaign file of a run that checks BER: ``campaign``, or one in the report folder."""
+    path = campaign or (Path(report) / CAMPAIGN_FILE if report else None)
+    if path is None:
+        if resume:
+            raise ConfigError("--resume needs the campaign file: give --report DIR (its "
+                              "campaign.json) or --campaign FILE, as in the interrupted run",
+                              key="--resume")
+        return None
+    journal = CampaignFile(path, seed=seed, resume=resume)
+    for spec in specs:
+        journal.attach(spec)
+    return journal
+
+
+def _run_one(spec, guard: Interrupts, seed, only, stream, bar, results, execution=None,
+             journal=None) -> None:
     """One device's block, printed as it is measured; its result (partial after an interrupt,
     which then propagates) goes to ``results``."""
     print(render_header(Subject.of(spec), seed), file=stream, flush=True)
+    if execution is not None and not execution.in_process and "ber" in spec.checks:
+        print(f"  BER blocks on {execution.describe()}", file=stream, flush=True)
     kept: list = []
     started = time.perf_counter()
+
+    def warn(text):
+        if bar:
+            bar.clear()
+        print(f"  warning: {text}", file=stream, flush=True)
 
     def on_verdict(v):
         guard.check()  # a signal a device swallowed: stop here, without its verdict
@@ -230,11 +266,15 @@ def _run_one(spec, guard: Interrupts, seed, only, stream, bar, results) -> None:
         print(render_verdict(v), file=stream, flush=True)
 
     try:
-        result = check(spec, seed=seed, only=only, on_verdict=on_verdict, progress=bar)
+        result = check(spec, seed=seed, only=only, on_verdict=on_verdict, progress=bar,
+                       execution=execution, journal=journal, warn=warn)
     except Interrupted:
         with guard.deferred():
             result = _interrupted_result(Subject.of(spec), kept, expected_names(spec, only),
                                          seed, guard, started)
+            if journal is not None and "ber" in spec.checks:
+                result.notes.append(f"the BER campaign is kept in {journal.path}: run the same "
+                                    f"command with --resume to continue where it stopped")
             results.append(result)
             if bar:
                 bar.clear()

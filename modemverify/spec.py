@@ -75,6 +75,9 @@ class DeviceSpec:
     sha256: str | None = None
     base_dir: Path = field(default_factory=Path.cwd)
     extra: dict[str, Any] = field(default_factory=dict)
+    #: ``execution:``: where the BER check's blocks run (config.EXECUTION_OPTIONS)
+    execution: dict[str, Any] = field(default_factory=lambda: {
+        "workers": 1, "cluster": None, "upload": False, "time_budget_s": None})
 
     def resolve(self, path: str) -> Path:
         """A path from the device file, relative to the file's folder."""

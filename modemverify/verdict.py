@@ -124,6 +124,26 @@ class Verdict:
         return d
 
 
+    @classmethod
+    def from_json(cls, d: dict[str, Any]) -> "Verdict":
+        """The inverse of :meth:`to_json` (a resumed campaign's decided points).
+
+        >>> v = Verdict("x", "pass", "ok", statistic=float("inf"), interval=(0.0, 1.0))
+        >>> Verdict.from_json(v.to_json()) == v
+        True
+        """
+        d = dict(d)
+        for key in ("statistic", "limit"):
+            d[key] = _from_json_num(d.get(key))
+        if d.get("interval") is not None:
+            d["interval"] = tuple(_from_json_num(x) for x in d["interval"])
+        return cls(**d)
+
+
+def _from_json_num(x):
+    return float(x) if isinstance(x, str) and x in ("inf", "-inf", "nan") else x
+
+
 def _num(x: float) -> str:
     if x is None:
         return "-"

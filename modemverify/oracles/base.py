@@ -44,6 +44,8 @@ class Oracle:
     #: device operations the check needs (``modulate``, ``demodulate``, ``demodulate_soft``);
     #: a device without one of them gets a skipped verdict that names it
     requires: ClassVar[tuple[str, ...]] = ()
+    #: the check's work runs on the run's engine (workers, a cluster): blocks.Engine
+    parallel: ClassVar[bool] = False
 
     def validate(self, opts: dict, spec: DeviceSpec, *, file: str | None) -> None:
         """Check options against the scheme when the device file is loaded (raise ConfigError

@@ -35,10 +35,13 @@ B = beta/(1-alpha)); C. J. Clopper and E. S. Pearson, Biometrika 26(4):404-413, 
 from __future__ import annotations
 
 import math
+import time
+from typing import NamedTuple
 
 import numpy as np
 
 from ..bench import Bench
+from ..blocks import BlockJob, InProcess, Journal, block_schedule, pack_counts, unpack_counts
 from ..errors import ConfigError
 from ..options import Opt
 from ..records import BerPointRecord
@@ -49,16 +52,17 @@ from ..stats import (
     block_interval,
     clopper_pearson,
     dispersion_test,
+    expected_sample_size,
+    fixed_sample_size,
     implementation_loss_db,
 )
-from ..vectors.bits import random_bits
-from ..vectors.channels import Awgn, channel_from_config
+from ..vectors.channels import FLOAT32_NOISE_MIN_BER, NOISE_PRECISIONS, channel_from_config
 from ..verdict import Verdict
 from .base import Oracle
 
 __all__ = [
     "MIN_SUB_BLOCK", "FIRST_BLOCK", "MIN_BURST_BLOCKS", "BETTER_THAN_THEORY_DB", "BerOracle",
-    "ORACLE",
+    "ORACLE", "BlockSizes", "block_sizes", "noise_precision", "PointPlan", "plan_point", "computed_bits",
 ]
 
 #: shortest sub-block (bits) of the error counts the over-dispersion test uses
@@ -105,6 +109,7 @@ class BerOracle(Oracle):
     name = "ber"
     order = 110
     fresh_vectors = True
+    parallel = True
     summary = "BER within margin_db of theory, decided sequentially with stated confidence"
     options = {
         "ebn0_db": Opt("numbers", None, "Eb/N0 points in dB (default: where theory BER is "
@@ -128,6 +133,9 @@ class BerOracle(Oracle):
                            "[{kind: phase_offset, degrees: 5}]", check=_impairments),
         "decision": Opt("choice", "sprt", "sprt (sequential) or interval (Clopper-Pearson "
                         "bounds against the limit)", choices=("sprt", "interval")),
+        "noise": Opt("choice", "auto", "precision of the normals drawn: float32 (faster), "
+                     "float64, or auto (float32 where theory BER >= 1e-10)",
+                     choices=("auto",) + NOISE_PRECISIONS),
     }
 
     @staticmethod
@@ -178,21 +186,39 @@ class BerOracle(Oracle):
         return None
 
     def run(self, bench: Bench, opts, rng, seed):
+        # the blocks draw from their own streams (blocks.block_seed), not from ``rng``: any
+        # worker can compute any block, and the verdict does not depend on which did
         points = self.points(bench.spec, opts)
-        n_points = len(points)
-        risk = 1 - opts["confidence"]
-        if opts["familywise"]:
-            risk /= n_points
+        risk = self.risk(opts, len(points))
         impair = channel_from_config(opts["impairments"], bits_per_symbol=bench.k,
                                      samples_per_symbol=bench.sps)
-        streams = rng.spawn(n_points)
-        for ebn0, stream in zip(points, streams):  # each point as soon as it is decided
-            yield self._point(bench, opts, stream, seed, ebn0, risk, impair)
+        plans = [plan_point(bench.convention.modulation, x, opts, risk, bench.k)
+                 for x in points]
+        for plan in plans:
+            if plan.warning:
+                bench.warn(f"{self.point_name(plan.ebn0_db)}: {plan.warning}")
+        clock = _Budget(bench, [self.point_name(p.ebn0_db) for p in plans], plans)
+        engine = bench.engine if bench.engine is not None else InProcess(bench)
+        journal = bench.journal if bench.journal is not None else Journal()
+        for ebn0 in points:  # each point as soon as it is decided
+            v = self._point(bench, opts, engine, journal, clock, seed, ebn0, risk, impair)
+            if v.outcome != "error":
+                journal.decided(bench.spec.name, v.name, v)
+            yield v
 
-    def _point(self, bench, opts, rng, seed, ebn0, risk, impair) -> Verdict:
+    @staticmethod
+    def risk(opts, n_points: int) -> float:
+        """The risk of each point: ``1 - confidence``, split over the points if familywise."""
+        risk = 1 - opts["confidence"]
+        return risk / n_points if opts["familywise"] else risk
+
+    def _point(self, bench, opts, engine, journal, clock, seed, ebn0, risk, impair) -> Verdict:
         mod = bench.convention.modulation
-        k, sps = bench.k, bench.sps
+        k = bench.k
         name = self.point_name(ebn0)
+        saved = journal.load(bench.spec.name, name) or {}
+        if "verdict" in saved:  # decided before the interrupt: as it was
+            return Verdict.from_json(saved["verdict"])
         p0 = float(theory_ber(mod, ebn0))
         p1 = float(theory_ber(mod, ebn0 - opts["margin_db"]))
         max_bits = int(opts["max_bits"])
@@ -201,55 +227,63 @@ class BerOracle(Oracle):
                            f"theory BER at {ebn0:g} dB is {p0:.3g} (limit {p1:.3g}): too small to "
                            f"measure with max_bits={max_bits:.3g}; choose a lower Eb/N0 or a "
                            f"larger budget", statistic=None, limit=p1, seed=seed)
-        byte_sym = 8 * k  # a block is whole bytes of whole symbols
-        # sub-blocks for the over-dispersion test: long enough to expect >= 2 errors at theory
-        sub = byte_sym * max(1, -(-max(MIN_SUB_BLOCK, int(2 / p0)) // byte_sym))
-        block_max = max(sub, (opts["block_bits"] // sub) * sub)
-        block = min(block_max, max(sub, (FIRST_BLOCK // sub) * sub))
-        # unit-energy pulses carry unit-energy symbols: Es = 1 (see vectors.channels.Awgn)
-        awgn = Awgn(ebn0, k, sps, energy=opts["energy"], nominal_es=1.0)
+        sizes = block_sizes(k, p0, opts)
+        sub = sizes.sub
         sprt = Sprt(p0, p1, alpha=risk, beta=risk)
         conf = 1 - 2 * risk  # two-sided interval whose one-sided ends each carry the risk
         mode = opts["decision"]
         sub_counts: list[np.ndarray] = []
-        bits_sent = errors = 0
+        bits_sent = errors = done = 0
         decided = None
         bursty = None
-        buf = None
-        while bits_sent < max_bits and decided is None:
-            n = min(block, max_bits - bits_sent)
-            n -= n % byte_sym
-            if n <= 0:
-                break
-            bits = random_bits(rng, n)
-            tx = bench.transmit(bits)
-            if impair.stages:
-                tx = impair.apply(tx, rng)
-            if buf is None or buf.size != tx.size:
-                buf = np.empty(tx.size, dtype=np.complex128)
-            rx = bench.receive(awgn.apply(tx, rng, out=buf), n // k)
-            err = np.flatnonzero(rx != bits)
-            sub_counts.append(np.bincount(err // sub, minlength=-(-n // sub)))
-            bits_sent += n
-            errors += err.size
+        state = saved.get("state")
+        if state:  # a resumed campaign: the blocks done, as they were
+            done, bits_sent, errors = state["blocks"], state["bits"], state["errors"]
+            mode, bursty = state["mode"], state["bursty"]
+            sub_counts = [unpack_counts(state["sub_counts"])]
             if mode == "sprt":
-                d = sprt.update(err, n)
-                if d is not None:
-                    counts = np.concatenate(sub_counts)
-                    test = (dispersion_test(counts, sub) if len(counts) >= MIN_BURST_BLOCKS
-                            else None)
-                    if test is not None and test.bursty():
-                        mode, bursty = "interval", test.phi
-                    else:
-                        decided = (d.outcome, d.bits_used, d.errors_used, "sprt")
-            if mode == "interval" and decided is None:
-                r = block_interval(np.concatenate(sub_counts), sub, conf)
-                if r.high < p1:
-                    decided = ("pass", bits_sent, errors, "interval")
-                elif r.low > p1:
-                    decided = ("fail", bits_sent, errors, "interval")
-            bench.progress(name, bits_sent / max_bits, f"{bits_sent:.3g} bits, {errors} errors")
-            block = min(block_max, 2 * block)
+                sprt.restore(bits_sent, errors)
+        precision = noise_precision(opts, p0)
+        jobs = (BlockJob(self.name, name, i, offset, n, seed, ebn0, opts["energy"],
+                         tuple(opts["impairments"]), precision)
+                for i, offset, n in block_schedule(sizes.first, sizes.largest, max_bits,
+                                                   sizes.unit) if i >= done)
+        results = engine.results(jobs)
+        try:
+            for res in results:
+                err, n = res.errors, res.bits
+                sub_counts.append(np.bincount(err // sub, minlength=-(-n // sub)))
+                bits_sent += n
+                errors += err.size
+                done = res.index + 1
+                if mode == "sprt":
+                    d = sprt.update(err, n)
+                    if d is not None:
+                        counts = np.concatenate(sub_counts)
+                        test = (dispersion_test(counts, sub) if len(counts) >= MIN_BURST_BLOCKS
+                                else None)
+                        if test is not None and test.bursty():
+                            mode, bursty = "interval", test.phi
+                        else:
+                            decided = (d.outcome, d.bits_used, d.errors_used, "sprt")
+                if mode == "interval" and decided is None:
+                    r = block_interval(np.concatenate(sub_counts), sub, conf)
+                    if r.high < p1:
+                        decided = ("pass", bits_sent, errors, "interval")
+                    elif r.low > p1:
+                        decided = ("fail", bits_sent, errors, "interval")
+                if decided is None:
+                    sub_counts = [np.concatenate(sub_counts)]
+                    journal.save(bench.spec.name, name, {
+                        "blocks": done, "bits": bits_sent, "errors": errors, "mode": mode,
+                        "bursty": bursty, "sub_counts": pack_counts(sub_counts[0])})
+                bench.progress(name, bits_sent / max_bits,
+                               f"{bits_sent:.3g} bits, {errors} errors")
+                clock.measured(name, bits_sent, res)
+                if decided is not None:
+                    break
+        finally:
+            results.close()  # drops (and cancels) the blocks computed past the decision
         if decided is None:
             decided = ("inconclusive", bits_sent, errors, mode)
         outcome, used_bits, used_errors, method = decided
@@ -269,7 +303,8 @@ class BerOracle(Oracle):
             "decided_after_errors": used_errors, "method": method, "risk": risk,
             "loss_db": loss.loss_db, "loss_interval_db": [loss.low_db, loss.high_db],
             "dispersion": r.dispersion, "sub_block_bits": sub,
-            "energy": opts["energy"], "sides": bench.sides(),
+            "energy": opts["energy"], "sides": bench.sides(), "noise": precision,
+            "blocks": done,
             "impairments": impair.describe() if impair.stages else "",
         }
         how = ("sequential test" if method == "sprt" else "interval test")
@@ -294,6 +329,120 @@ class BerOracle(Oracle):
                       f"max_bits, or widen margin_db)" + extra)
         return Verdict(name, outcome, reason, statistic=ber, interval=interval, confidence=conf,
                        limit=p1, unit="BER", seed=seed, details=details)
+
+
+class BlockSizes(NamedTuple):
+    """A point's block sizes (bits): the over-dispersion test's sub-block, the first and the
+    largest block, and the unit every block is a multiple of."""
+
+    sub: int
+    first: int
+    largest: int
+    unit: int
+
+
+def block_sizes(k: int, p0: float, opts) -> BlockSizes:
+    """The block sizes of a point whose theory BER is ``p0`` (they fix the schedule)."""
+    byte_sym = 8 * k  # a block is whole bytes of whole symbols
+    # sub-blocks for the over-dispersion test: long enough to expect >= 2 errors at theory
+    sub = byte_sym * max(1, -(-max(MIN_SUB_BLOCK, int(2 / p0)) // byte_sym))
+    largest = max(sub, (opts["block_bits"] // sub) * sub)
+    first = min(largest, max(sub, (FIRST_BLOCK // sub) * sub))
+    return BlockSizes(sub, first, largest, byte_sym)
+
+
+def noise_precision(opts, p0: float) -> str:
+    """float32 noise where its tail is accurate enough for the BER measured, else float64."""
+    choice = opts["noise"]
+    if choice != "auto":
+        return choice
+    return "float32" if p0 >= FLOAT32_NOISE_MIN_BER else "float64"
+
+
+class PointPlan(NamedTuple):
+    """What one point is expected to cost: theory, limit, and the bits the tests need."""
+
+    ebn0_db: float
+    theory_ber: float
+    limit_ber: float
+    #: Wald's average sample number of the sequential test at theory and at the limit (bits)
+    asn_theory: float
+    asn_limit: float
+    #: bits a fixed-sample test with the same risks needs
+    fixed_bits: int
+    max_bits: int
+    #: why the point will probably not decide within its budget, or ""
+    warning: str
+    sizes: BlockSizes | None = None
+
+    @property
+    def expected_bits(self) -> float:
+        """The bits computed for the larger of the two averages: whole blocks, at most the
+        budget (NaN for a point that cannot be judged)."""
+        if self.sizes is None:
+            return math.nan
+        return max(computed_bits(self.asn_theory, self.sizes, self.max_bits),
+                   computed_bits(self.asn_limit, self.sizes, self.max_bits))
+
+
+def computed_bits(bits: float, sizes: BlockSizes, max_bits: int) -> int:
+    """Bits the schedule computes to reach ``bits``: whole blocks, at most ``max_bits``.
+
+    >>> sizes = BlockSizes(sub=8, first=8, largest=32, unit=4)
+    >>> computed_bits(10, sizes, 100), computed_bits(30, sizes, 100)
+    (24, 56)
+    """
+    if not bits == bits:  # NaN
+        return 0
+    end = 0
+    for _, offset, n in block_schedule(sizes.first, sizes.largest, max_bits, sizes.unit):
+        end = offset + n
+        if end >= bits:
+            break
+    return end
+
+
+def plan_point(modulation: str, ebn0: float, opts, risk: float, k: int = 1) -> PointPlan:
+    """The expected cost of one point (no device needed); see :class:`PointPlan`."""
+    p0 = float(theory_ber(modulation, ebn0))
+    p1 = float(theory_ber(modulation, ebn0 - opts["margin_db"]))
+    max_bits = int(opts["max_bits"])
+    if not 0 < p0 < p1 < 0.5:
+        return PointPlan(ebn0, p0, p1, math.nan, math.nan, 0, max_bits, "")
+    a0 = expected_sample_size(p0, p0, p1, risk, risk)
+    a1 = expected_sample_size(p1, p0, p1, risk, risk)
+    fixed = fixed_sample_size(p0, p1, risk, risk)
+    warning = ""
+    if max(a0, a1) > max_bits:
+        warning = (f"the sequential test needs on average {a0:.3g} bits at theory and "
+                   f"{a1:.3g} at the limit, more than max_bits={max_bits:.3g}: it will "
+                   f"probably end inconclusive (raise max_bits, or widen margin_db)")
+    return PointPlan(ebn0, p0, p1, a0, a1, fixed, max_bits, warning,
+                     block_sizes(k, p0, opts))
+
+
+class _Budget:
+    """Warns once, after the first block, when the check will likely outlast its time budget."""
+
+    def __init__(self, bench: Bench, names: list[str], plans: list[PointPlan]):
+        self.bench = bench
+        self.budget = bench.time_budget_s
+        self.expected = dict(zip(names, (p.expected_bits for p in plans)))  # NaN: no judging
+        self.t0 = time.perf_counter()
+        self.warned = self.budget is None
+
+    def measured(self, name: str, bits_sent: int, result) -> None:
+        if self.warned:
+            return
+        self.warned = True
+        rate = bits_sent / max(time.perf_counter() - self.t0, 1e-9)
+        total = sum(b for b in self.expected.values() if b == b)
+        need = total / rate
+        if need > self.budget:
+            self.bench.warn(f"{self.bench.spec.name}: at the measured {rate:.3g} bit/s the BER "
+                            f"check needs about {need:.3g} s on average, more than the time "
+                            f"budget of {self.budget:g} s (run modemverify plan for the "
+                            f"details; add workers, or relax the points)")
 
 
 def _noise_reference(bench: Bench, opts) -> str:

@@ -165,6 +165,23 @@ class Sprt:
         """Bits and errors consumed so far and the log likelihood ratio."""
         return SprtState(self._bits, self._errors, float(self._llr(self._bits, self._errors)))
 
+    def restore(self, bits: int, errors: int) -> "Sprt":
+        """Continue from ``bits`` consumed with ``errors`` among them, undecided (a resumed
+        campaign); the log likelihood ratio follows from the counts.
+
+        >>> t = Sprt(1e-2, 2e-2).restore(100, 1)
+        >>> t.state.bits, t.state.errors
+        (100, 1)
+        """
+        bits = _index(bits, "bits", minimum=0)
+        errors = _index(errors, "errors", minimum=0)
+        if errors > bits:
+            raise ConfigError(f"errors={errors} > bits={bits}")
+        if self._decision is not None or self._bits:
+            raise ConfigError("restore() is for a fresh test")
+        self._bits, self._errors = bits, errors
+        return self
+
     def update(self, error_positions, block_len: int) -> Decision | None:
         """Consume one block of compared bits and return the decision if one is reached in it.
 

@@ -1,0 +1,234 @@
+"""BER blocks: the unit of work of a BER campaign, the same on one core, N workers or a cluster.
+
+A point of the ``ber`` check sends bits in blocks. What a block is does not depend on who
+computes it:
+
+* **The schedule** (:func:`block_schedule`) is fixed by the point alone: the first block is
+  ``first`` bits, each next one twice as long up to ``largest``, the last one cut at the
+  budget, every block a whole number of ``unit`` bits.
+* **The random stream** of block ``i`` of point ``P`` of check ``C`` (its bits, its impairments'
+  draws and its noise) is ``SeedSequence(seed, spawn_key=(crc32(C), crc32(P), i))``
+  (:func:`block_seed`): no stream is shared between blocks, so any worker can compute any block
+  and get the same bits and the same noise.
+* **The answer** (:func:`run_block`) is the positions of the bit errors in the block: all the
+  sequential test and the over-dispersion test need, at the exact bit.
+
+The consumer (the ``ber`` check) takes the answers in block order from an :class:`Engine` and
+stops at the exact deciding bit; the verdict is therefore identical whatever engine computed
+the blocks. :class:`InProcess` is the embedded default (the check's own bench, one block at a
+time, nothing computed ahead); :mod:`modemverify.execution` has the worker pool and the Dask
+engine, which compute a few blocks ahead and drop (and cancel) those past the decision.
+
+A :class:`Journal` keeps a point's state after every block so that an interrupted campaign can
+resume; the default keeps nothing (:mod:`modemverify.execution.campaign` has the file).
+"""
+
+from __future__ import annotations
+
+import base64
+import time
+import zlib
+from dataclasses import dataclass, field
+from typing import Any, Iterator
+
+import numpy as np
+
+from .bench import Bench
+from .errors import AdapterError
+from .vectors.bits import random_bits
+from .vectors.channels import Awgn, channel_from_config
+
+__all__ = [
+    "BlockJob", "BlockResult", "block_seed", "block_schedule", "run_block", "Engine",
+    "InProcess", "Unavailable", "Journal", "bench_state", "apply_bench_state", "pack_counts", "unpack_counts",
+]
+
+
+def block_seed(seed: int, check: str, point: str, index: int) -> np.random.SeedSequence:
+    """The seed sequence of block ``index`` of ``point`` in ``check``.
+
+    >>> a = np.random.default_rng(block_seed(7, "ber", "ber.ebn0=6dB", 3)).integers(1 << 30)
+    >>> b = np.random.default_rng(block_seed(7, "ber", "ber.ebn0=6dB", 3)).integers(1 << 30)
+    >>> bool(a == b), int(a) != int(np.random.default_rng(block_seed(7, "ber", "ber.ebn0=6dB",
+    ...                                                                4)).integers(1 << 30))
+    (True, True)
+    """
+    return np.random.SeedSequence(int(seed), spawn_key=(zlib.crc32(check.encode()),
+                                                        zlib.crc32(point.encode()), int(index)))
+
+
+def block_schedule(first: int, largest: int, max_bits: int, unit: int
+                   ) -> Iterator[tuple[int, int, int]]:
+    """``(index, offset, bits)`` of every block of a point, in order.
+
+    ``first`` and ``largest`` are multiples of ``unit``; blocks double from ``first`` to
+    ``largest``; the last one is cut to the budget (to whole ``unit`` bits).
+
+    >>> list(block_schedule(8, 32, 100, 4))
+    [(0, 0, 8), (1, 8, 16), (2, 24, 32), (3, 56, 32), (4, 88, 12)]
+    """
+    index = offset = 0
+    block = first
+    while offset < max_bits:
+        n = min(block, max_bits - offset)
+        n -= n % unit
+        if n <= 0:
+            return
+        yield index, offset, n
+        index += 1
+        offset += n
+        block = min(largest, 2 * block)
+
+
+@dataclass(frozen=True)
+class BlockJob:
+    """One block of one BER point: everything a worker needs besides the open device."""
+
+    check: str
+    point: str
+    index: int
+    offset: int
+    bits: int
+    seed: int
+    ebn0_db: float
+    energy: str = "nominal"
+    impairments: tuple = ()
+    precision: str = "float64"
+
+    def rng(self) -> np.random.Generator:
+        return np.random.default_rng(block_seed(self.seed, self.check, self.point, self.index))
+
+
+@dataclass(frozen=True)
+class BlockResult:
+    """The bit errors of one block (positions within it, increasing) and what it cost."""
+
+    index: int
+    bits: int
+    errors: np.ndarray
+    seconds: float = 0.0
+
+
+_BUFFER = "blocks.buffer"
+
+
+def pack_counts(counts: np.ndarray) -> str:
+    """Error counts per sub-block as compact text (zlib over int64, base64) for a campaign file.
+
+    >>> unpack_counts(pack_counts(np.array([0, 3, 1]))).tolist()
+    [0, 3, 1]
+    """
+    return base64.b64encode(zlib.compress(np.asarray(counts, dtype="<i8").tobytes(), 6)
+                            ).decode("ascii")
+
+
+def unpack_counts(text: str) -> np.ndarray:
+    return np.frombuffer(zlib.decompress(base64.b64decode(text)), dtype="<i8").astype(np.int64)
+
+
+def run_block(bench: Bench, job: BlockJob) -> BlockResult:
+    """Send one block through the bench's modulator, the channel and its demodulator.
+
+    Draws, in this order, from the block's own stream: the bits, the impairments' randomness,
+    the noise. Raises what the device raises (AdapterError through the guard).
+    """
+    t0 = time.perf_counter()
+    rng = job.rng()
+    k, sps = bench.k, bench.sps
+    bits = random_bits(rng, job.bits)
+    tx = bench.transmit(bits)
+    if job.impairments:
+        impair = channel_from_config(list(job.impairments), bits_per_symbol=k,
+                                     samples_per_symbol=sps)
+        tx = impair.apply(tx, rng)
+    # unit-energy pulses carry unit-energy symbols: Es = 1 (see vectors.channels.Awgn)
+    awgn = Awgn(job.ebn0_db, k, sps, energy=job.energy, nominal_es=1.0,
+                precision=job.precision)
+    # one buffer per bench, reused block after block (the device's own output is never
+    # written to: a device may hand out an array it keeps)
+    buf = bench.cache.get(_BUFFER)
+    if buf is None or buf.size != tx.size:
+        buf = bench.cache[_BUFFER] = np.empty(tx.size, dtype=np.complex128)
+    rx = bench.receive(awgn.apply(tx, rng, out=buf), job.bits // k)
+    errors = np.flatnonzero(rx != bits)
+    return BlockResult(job.index, job.bits, errors, time.perf_counter() - t0)
+
+
+class Engine:
+    """Computes blocks and hands their results back in block order.
+
+    :meth:`results` takes the jobs of one point (an iterator, consumed lazily) and yields
+    their results in the same order; closing the generator (the consumer has decided) drops
+    and cancels whatever was computed or started ahead. ``workers`` is how many blocks run at
+    once.
+    """
+
+    workers: int = 1
+    description: str = "in process"
+
+    def results(self, jobs: Iterator[BlockJob]) -> Iterator[BlockResult]:
+        raise NotImplementedError
+
+    def close(self) -> None:
+        """Stop the engine's workers (idempotent)."""
+
+
+@dataclass
+class InProcess(Engine):
+    """The embedded default: the check's own bench computes one block when it is asked for."""
+
+    bench: Bench
+
+    def results(self, jobs):
+        for job in jobs:
+            yield run_block(self.bench, job)
+
+
+@dataclass
+class Unavailable(Engine):
+    """The engine asked for could not start: every block raises AdapterError with why."""
+
+    reason: str
+    description: str = "unavailable"
+
+    def results(self, jobs):
+        raise AdapterError(self.reason)
+        yield  # a generator, like every engine's results
+
+
+@dataclass
+class Journal:
+    """Where a campaign keeps each point's state; this one keeps nothing.
+
+    ``load(device, point)`` returns what was saved (``{"state": ...}`` for a point in progress,
+    ``{"verdict": ...}`` for a decided one) or None; ``save`` and ``decided`` record them.
+    """
+
+    saved: dict[str, Any] = field(default_factory=dict)
+
+    def load(self, device: str, point: str) -> dict | None:
+        return None
+
+    def save(self, device: str, point: str, state: dict) -> None:
+        """The state of a point after a block (the file journal writes it atomically)."""
+
+    def decided(self, device: str, point: str, verdict) -> None:
+        """A point's verdict: a resumed run takes it as it is."""
+
+
+def bench_state(bench: Bench) -> dict:
+    """What a worker's bench must share with the run's: the measured alignment and scale.
+
+    Measured once on the run's own bench (so the worker does not measure them again, and
+    could not measure them differently), then handed to every worker.
+    """
+    state = {}
+    if bench.device.has("modulate"):
+        state["alignment"] = bench.alignment()
+        state["scale"] = bench.scale()
+    return state
+
+
+def apply_bench_state(bench: Bench, state: dict) -> Bench:
+    bench.cache.update(state)
+    return bench
