@@ -51,8 +51,9 @@ class Bench:
     engine: Any = None
     #: where a BER campaign keeps its state (``blocks.Journal``); None: nowhere
     journal: Any = None
-    #: ``warn(text)``: a warning before a long check spends its budget (the command line prints
-    #: it at once and keeps it with the device's result)
+    #: ``warn(text)``: a line to say at once, before a long check spends its budget: a warning
+    #: (``warning: ...``) or what a resumed campaign takes over (the command line prints it,
+    #: and the device's result keeps it in its notes)
     warn: Callable[[str], None] = field(default=lambda text: None)
     #: seconds a BER check should take at most; it warns when it will likely take longer
     time_budget_s: float | None = None

@@ -251,7 +251,7 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
     notes: list[str] = []
 
     def warned(text):
-        notes.append(f"warning: {text}")
+        notes.append(text)
         if warn is not None:
             warn(text)
 
@@ -293,7 +293,7 @@ def _start_engine(bench: Bench, execution, adapter, warned) -> None:
     if bench.engine is not None or execution.in_process:
         return
     if adapter is not None:
-        warned(f"{execution.describe()} asked for, but this device was given as a Python "
+        warned(f"warning: {execution.describe()} asked for, but this device was given as a Python "
                f"object, which workers cannot open: the blocks run in this process")
         return
     try:

@@ -256,7 +256,7 @@ def _run_one(spec, guard: Interrupts, seed, only, stream, bar, results, executio
     def warn(text):
         if bar:
             bar.clear()
-        print(f"  warning: {text}", file=stream, flush=True)
+        print(f"  {text}", file=stream, flush=True)
 
     def on_verdict(v):
         guard.check()  # a signal a device swallowed: stop here, without its verdict

@@ -196,7 +196,7 @@ class BerOracle(Oracle):
                  for x in points]
         for plan in plans:
             if plan.warning:
-                bench.warn(f"{self.point_name(plan.ebn0_db)}: {plan.warning}")
+                bench.warn(f"warning: {self.point_name(plan.ebn0_db)}: {plan.warning}")
         clock = _Budget(bench, [self.point_name(p.ebn0_db) for p in plans], plans)
         engine = bench.engine if bench.engine is not None else InProcess(bench)
         journal = bench.journal if bench.journal is not None else Journal()
@@ -218,6 +218,8 @@ class BerOracle(Oracle):
         name = self.point_name(ebn0)
         saved = journal.load(bench.spec.name, name) or {}
         if "verdict" in saved:  # decided before the interrupt: as it was
+            bench.warn(f"resumed: {name} was decided before the interrupt; its verdict is "
+                       f"taken from the campaign file")
             return Verdict.from_json(saved["verdict"])
         p0 = float(theory_ber(mod, ebn0))
         p1 = float(theory_ber(mod, ebn0 - opts["margin_db"]))
@@ -243,6 +245,8 @@ class BerOracle(Oracle):
             sub_counts = [unpack_counts(state["sub_counts"])]
             if mode == "sprt":
                 sprt.restore(bits_sent, errors)
+            bench.warn(f"resumed: {name} continues at block {done} ({bits_sent:.3g} bits and "
+                       f"{errors} errors kept from the campaign file)")
         precision = noise_precision(opts, p0)
         jobs = (BlockJob(self.name, name, i, offset, n, seed, ebn0, opts["energy"],
                          tuple(opts["impairments"]), precision)
@@ -439,7 +443,7 @@ class _Budget:
         total = sum(b for b in self.expected.values() if b == b)
         need = total / rate
         if need > self.budget:
-            self.bench.warn(f"{self.bench.spec.name}: at the measured {rate:.3g} bit/s the BER "
+            self.bench.warn(f"warning: {self.bench.spec.name}: at the measured {rate:.3g} bit/s the BER "
                             f"check needs about {need:.3g} s on average, more than the time "
                             f"budget of {self.budget:g} s (run modemverify plan for the "
                             f"details; add workers, or relax the points)")
