@@ -46,7 +46,7 @@ from .operators import (
 __all__ = [
     "DEFAULT_MODULATIONS", "DEFAULT_SEEDS", "OC_LOSSES_DB", "CONVENTION", "CONFIDENCE",
     "Certificate", "run_selftest",
-    "write_certificate",
+    "write_certificate", "certify",
 ]
 
 DEFAULT_MODULATIONS = ("qpsk", "16qam", "64qam")
@@ -359,3 +359,20 @@ def write_certificate(cert: Certificate, *, report: str | Path | None = None,
         write_atomic(folder / "index.html", _html(cert, figure))
     if junit is not None:
         write_atomic(junit, _junit(cert))
+
+
+def certify(modulations=DEFAULT_MODULATIONS, *, seeds: int = DEFAULT_SEEDS, seed: int = 1,
+            report=None, junit=None, oracles=None, operators=None, oc_seeds=None,
+            out=print) -> Certificate:
+    """What ``modemverify selftest`` does: run, print a line per operator and every gap, write
+    the outputs; the command exits non-zero when ``not certificate.ok``."""
+    cert = run_selftest(modulations, seeds=seeds, seed=seed, oracles=oracles,
+                        operators=operators, oc_seeds=oc_seeds, progress=out)
+    write_certificate(cert, report=report, junit=junit)
+    st = cert.data["stamp"]
+    out(f"modemverify {st['modemverify']} self-test, seeds {st['seed']}.."
+        f"{st['seed'] + st['seeds'] - 1}, {st['duration_s']:.0f} s: "
+        + ("no gap" if cert.ok else f"{len(cert.gaps)} gap(s)"))
+    for gap in cert.gaps:
+        out(f"  GAP  {gap}")
+    return cert
