@@ -24,6 +24,7 @@ from .report.outputs import OutputLock, check_output_file, check_output_folder
 from .runner import DEFAULT_SEED
 from .schemes.conventions import CONVENTIONS, MODULATIONS
 from .schemes.theory import THEORY_MODULATIONS, ber, ebn0_for_ber, ser
+from .selftest import DEFAULT_MODULATIONS, DEFAULT_SEEDS, certify
 from .session import (
     EXIT_FAIL,
     EXIT_INTERRUPTED,
@@ -36,7 +37,7 @@ from .vectors.recording import SHIPPED_SETS, export_golden
 
 __all__ = [
     "build_parser", "cmd_plan", "main", "cmd_check", "cmd_theory", "cmd_compare", "cmd_checks",
-    "cmd_identify", "cmd_vectors_export", "cmd_demo",
+    "cmd_identify", "cmd_vectors_export", "cmd_demo", "cmd_selftest",
 ]
 
 
@@ -177,6 +178,16 @@ def build_parser() -> argparse.ArgumentParser:
                    help="where the JUnit file and the report go (default ./modemverify-demo)")
     d.add_argument("--seed", type=_seed, default=DEFAULT_SEED,
                    help=f"seed of every random draw (default {DEFAULT_SEED})")
+
+    st = sub.add_parser("selftest", help="certify on this machine that every check can fail: "
+                        "mutants of the reference modem and the reference itself, judged")
+    st.add_argument("--modulation", action="append", metavar="M",
+                    help=f"repeatable (default {' '.join(DEFAULT_MODULATIONS)})")
+    st.add_argument("--seeds", type=int, default=DEFAULT_SEEDS, metavar="N",
+                    help=f"seeds per mutant and for the reference (default {DEFAULT_SEEDS})")
+    st.add_argument("--seed", type=_seed, default=DEFAULT_SEED, help="the first seed")
+    st.add_argument("--report", metavar="DIR", help="write index.html, certificate.json")
+    st.add_argument("--junit", metavar="FILE", help="write the certificate as JUnit XML")
     return p
 
 
@@ -186,9 +197,9 @@ def main(argv: list[str] | None = None, *, signal_before: int | None = None) -> 
     """
     args = build_parser().parse_args(argv)
     args.signal_before = signal_before
-    commands = {"check": cmd_check, "plan": cmd_plan, "identify": cmd_identify, "compare": cmd_compare,
-                "checks": cmd_checks, "theory": cmd_theory, "vectors": cmd_vectors_export,
-                "demo": cmd_demo}
+    commands = {"check": cmd_check, "plan": cmd_plan, "identify": cmd_identify,
+                "compare": cmd_compare, "checks": cmd_checks, "theory": cmd_theory, "vectors": cmd_vectors_export,
+                "demo": cmd_demo, "selftest": cmd_selftest}
     try:
         return commands[args.command](args)
     except ConfigError as exc:
@@ -206,6 +217,20 @@ def cmd_demo(args) -> int:
     out = check_output_folder(args.out, "--out")
     with OutputLock(out / "junit.xml"), OutputLock(out / "report"):
         return run_demo(out, seed=args.seed)
+
+
+def cmd_selftest(args) -> int:
+    mods = [m.lower() for m in args.modulation or DEFAULT_MODULATIONS]
+    for m in mods:
+        if m not in ("qpsk", "16qam", "64qam", "256qam"):
+            raise UnknownNameError("square-QAM or QPSK modulation", m,
+                                   ("qpsk", "16qam", "64qam", "256qam"), key="--modulation")
+    if args.seeds < 1:
+        raise ConfigError(f"--seeds={args.seeds}: expected a whole number >= 1")
+    with _outputs(args):
+        cert = certify(mods, seeds=args.seeds, seed=args.seed, report=args.report,
+                       junit=args.junit, out=lambda line: print(line, flush=True))
+    return EXIT_OK if cert.ok else EXIT_FAIL
 
 
 def cmd_check(args) -> int:
