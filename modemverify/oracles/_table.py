@@ -10,6 +10,7 @@ import numpy as np
 from ..bench import Bench
 from ..schemes.geometry import all_distinct, minimum_distance
 from ..schemes.labels import bits_to_labels, labels_to_bits
+from ..schemes.rules import SymbolRule, undo_rule
 from ..vectors.coverage import de_bruijn_labels
 
 
@@ -30,24 +31,38 @@ class MeasuredTable:
     probe_symbols: int
     #: energy per symbol of the raw device output (None for a demodulate probe)
     energy_per_symbol: float | None = None
+    #: the symbol rule undone before the table was read (the claimed convention's)
+    rule: SymbolRule | None = None
 
 
-def measure_table(bench: Bench) -> MeasuredTable:
-    """Probe the device once per bench (cached); raises AdapterError if the device misbehaves."""
-    if "table" not in bench.cache:
+def measure_table(bench: Bench, rule: SymbolRule | None = None) -> MeasuredTable:
+    """Probe the device once per bench (cached); raises AdapterError if the device misbehaves.
+
+    The table is read with the claimed convention's symbol rule undone, or with ``rule``
+    (the same probe: a device read as if it followed another rule, to name a rule defect).
+    """
+    key = "table" if rule is None else ("table", rule)
+    if key not in bench.cache:
         if bench.device.has("modulate"):
-            bench.cache["table"] = _from_modulate(bench)
+            bench.cache[key] = _from_modulate(bench, rule or bench.convention.rule)
         else:
-            bench.cache["table"] = _from_demodulate(bench)
-    return bench.cache["table"]
+            bench.cache[key] = _from_demodulate(bench)
+    return bench.cache[key]
 
 
-def _from_modulate(bench: Bench) -> MeasuredTable:
+def _from_modulate(bench: Bench, rule: SymbolRule) -> MeasuredTable:
     m = 1 << bench.k
     # the probe of every label pair (Bench.label_probe: wrapped by a filter span each side on a
     # shaped waveform, only the middle judged)
     probe = bench.label_probe()
     labels, sym, samples = probe.labels, probe.symbols, probe.samples
+    if not rule.plain:
+        # the judged symbols sit at positions pad... of the sent sequence; a differential
+        # rule judges each symbol against the one before, so the first judged symbol (whose
+        # predecessor is not judged) is left out
+        sym = undo_rule(sym, rule, start=probe.pad)
+        if rule.differential:
+            labels, sym = labels[1:], sym[1:]
     counts = np.bincount(labels, minlength=m)
     points = (np.bincount(labels, weights=sym.real, minlength=m)
               + 1j * np.bincount(labels, weights=sym.imag, minlength=m)) / counts
@@ -67,7 +82,7 @@ def _from_modulate(bench: Bench) -> MeasuredTable:
     es = float(np.vdot(samples, samples).real / np.vdot(ref_sym, ref_sym).real
                * np.mean(np.abs(bench.convention.points) ** 2))
     return MeasuredTable(points=points, spread=spread / scale, source="modulate",
-                         probe_symbols=int(labels.size), energy_per_symbol=es)
+                         probe_symbols=int(labels.size), energy_per_symbol=es, rule=rule)
 
 
 def _from_demodulate(bench: Bench) -> MeasuredTable:

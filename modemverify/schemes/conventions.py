@@ -29,16 +29,39 @@ import numpy as np
 from ..errors import ConfigError, UnknownNameError
 from .geometry import nearest_neighbour_pairs
 from .labels import gray_code, hamming, labels_to_bits
+from .rules import PLAIN, SymbolRule
 
 __all__ = [
     "MODULATIONS", "CONVENTION_ORDER", "Convention", "CONVENTIONS", "get_convention",
-    "conventions_for",
+    "conventions_for", "RING_RATIOS", "ring_ratio_for",
 ]
 
 #: modulation name -> bits per symbol
 MODULATIONS: dict[str, int] = {
-    "bpsk": 1, "qpsk": 2, "8psk": 3, "16qam": 4, "64qam": 6, "256qam": 8,
+    "bpsk": 1, "qpsk": 2, "8psk": 3, "16qam": 4, "64qam": 6, "256qam": 8, "1024qam": 10,
+    "pi/2-bpsk": 1, "16apsk": 4, "dbpsk": 1, "dqpsk": 2, "pi/4-dqpsk": 2,
 }
+
+#: the symbol rule each modulation sends its table under (see :mod:`.rules`); the table of a
+#: differential scheme gives the phase change a label sets
+_RULES: dict[str, SymbolRule] = {
+    "pi/2-bpsk": SymbolRule(turn_deg=90.0, turn_on="odd"),   # TS 38.211 5.1.1
+    "dbpsk": SymbolRule(differential=True),
+    "dqpsk": SymbolRule(differential=True),
+    "pi/4-dqpsk": SymbolRule(differential=True),
+}
+
+#: DVB-S2 16APSK ring ratio gamma = R2/R1 per code rate: ETSI EN 302 307-1 5.4.3, Table 9
+RING_RATIOS: dict[str, float] = {
+    "2/3": 3.15, "3/4": 2.85, "4/5": 2.75, "5/6": 2.70, "8/9": 2.60, "9/10": 2.57,
+}
+
+
+def ring_ratio_for(code_rate: str) -> float:
+    """The 16APSK ring ratio EN 302 307-1 Table 9 gives for ``code_rate`` ("3/4")."""
+    if code_rate not in RING_RATIOS:
+        raise UnknownNameError("16apsk code rate", code_rate, RING_RATIOS)
+    return RING_RATIOS[code_rate]
 
 #: the order in which conventions are preferred when several describe a device equally well
 CONVENTION_ORDER = ("3gpp", "ieee802.11", "dvb-s2", "gray", "natural")
@@ -71,6 +94,10 @@ class Convention:
     normalisation: float
     is_gray: bool
     source: str
+    #: how a symbol follows from its label's point (position, previous symbol)
+    rule: SymbolRule = PLAIN
+    #: APSK: outer over inner ring radius (None for other modulations)
+    ring_ratio: float | None = None
 
     @property
     def bits_per_symbol(self) -> int:
@@ -97,7 +124,9 @@ def _3gpp_axis(bits: np.ndarray) -> np.ndarray:
 def _3gpp(modulation: str) -> tuple[np.ndarray, float]:
     k = MODULATIONS[modulation]
     b = _bits_matrix(k)
-    if modulation == "bpsk":
+    if modulation in ("bpsk", "pi/2-bpsk"):
+        # 5.1.2 BPSK; 5.1.1 pi/2-BPSK is the same point turned by 90 degrees on odd positions
+        # (the rule, in _RULES)
         s = 1 / np.sqrt(2)
         return s * ((1 - 2 * b[:, 0]) + 1j * (1 - 2 * b[:, 0])), s
     i_bits, q_bits = b[:, 0::2], b[:, 1::2]
@@ -156,7 +185,25 @@ def _psk(modulation: str, gray: bool) -> tuple[np.ndarray, float]:
     return pts, 1.0
 
 
-def _dvbs2(modulation: str) -> tuple[np.ndarray, float]:
+#: EN 302 307-1 Figure 13 (16APSK): the labels at increasing angle on the inner ring (from
+#: pi/4, step pi/2) and on the outer ring (from pi/12, step pi/6)
+_APSK16_INNER = (0b1100, 0b1110, 0b1111, 0b1101)
+_APSK16_OUTER = (0b0100, 0b0000, 0b1000, 0b1010, 0b0010, 0b0110, 0b0111, 0b0011, 0b1011,
+                 0b1001, 0b0001, 0b0101)
+
+
+def _apsk16(gamma: float) -> tuple[np.ndarray, float]:
+    pts = np.empty(16, dtype=complex)
+    pts[list(_APSK16_INNER)] = np.exp(1j * (np.pi / 4 + np.arange(4) * np.pi / 2))
+    pts[list(_APSK16_OUTER)] = gamma * np.exp(1j * (np.pi / 12 + np.arange(12) * np.pi / 6))
+    # R1 so that the average energy is 1 (5.4.3: 4 R1^2 + 12 R2^2 = 16)
+    r1 = 1 / np.sqrt((4 + 12 * gamma ** 2) / 16)
+    return r1 * pts, r1
+
+
+def _dvbs2(modulation: str, ring_ratio: float | None = None) -> tuple[np.ndarray, float]:
+    if modulation == "16apsk":
+        return _apsk16(ring_ratio)
     if modulation == "qpsk":
         # Figure 9: 00 -> pi/4, 01 -> 7pi/4, 10 -> 3pi/4, 11 -> 5pi/4 (same as 3GPP QPSK).
         angles = np.array([1, 7, 3, 5]) * np.pi / 4
@@ -167,14 +214,32 @@ def _dvbs2(modulation: str) -> tuple[np.ndarray, float]:
     return np.exp(1j * angles), 1.0
 
 
+def _differential(modulation: str, gray: bool) -> tuple[np.ndarray, float]:
+    """Phase changes: DBPSK 0 -> 0, 1 -> pi; DQPSK m*pi/2, pi/4-DQPSK pi/4 + m*pi/2, the
+    change with index m carrying gray(m) or m (common practice)."""
+    m = 1 << MODULATIONS[modulation]
+    idx = np.arange(m)
+    lab = gray_code(idx) if gray else idx
+    offset = np.pi / 4 if modulation == "pi/4-dqpsk" else 0.0
+    pts = np.empty(m, dtype=complex)
+    pts[lab] = np.exp(1j * (2 * np.pi * idx / m + offset))
+    return pts, 1.0
+
+
+#: square QAM orders every QAM convention defines
+_QAM = ("16qam", "64qam", "256qam", "1024qam")
+_GENERIC = tuple(m for m in MODULATIONS if m not in ("pi/2-bpsk", "16apsk"))
+
 _BUILDERS = {
-    "3gpp": (("bpsk", "qpsk", "16qam", "64qam", "256qam"), _3gpp,
-             "3GPP TS 38.211 5.1 (TS 36.211 7.1)"),
-    "ieee802.11": (("bpsk", "qpsk", "16qam", "64qam", "256qam"), _ieee80211,
-                   "IEEE Std 802.11-2007 17.3.5.7, Tables 17-6 to 17-10"),
-    "dvb-s2": (("qpsk", "8psk"), _dvbs2, "ETSI EN 302 307-1 5.4.1-5.4.2, Figures 9-10"),
-    "gray": (tuple(MODULATIONS), None, "generic binary-reflected Gray labelling (common practice)"),
-    "natural": (tuple(MODULATIONS), None, "generic natural-binary labelling (common practice)"),
+    "3gpp": (("bpsk", "pi/2-bpsk", "qpsk") + _QAM, _3gpp,
+             "3GPP TS 38.211 5.1 (TS 36.211 7.1; 5.1.1 pi/2-BPSK, 5.1.7 1024QAM)"),
+    "ieee802.11": (("bpsk", "qpsk") + _QAM, _ieee80211,
+                   "IEEE Std 802.11-2007 17.3.5.7, Tables 17-6 to 17-10 (1024-QAM: the same "
+                   "rule in the HE PHY of IEEE 802.11ax, from memory)"),
+    "dvb-s2": (("qpsk", "8psk", "16apsk"), _dvbs2,
+               "ETSI EN 302 307-1 5.4.1-5.4.3, Figures 9-10 and 13, Table 9"),
+    "gray": (_GENERIC, None, "generic binary-reflected Gray labelling (common practice)"),
+    "natural": (_GENERIC, None, "generic natural-binary labelling (common practice)"),
 }
 
 CONVENTIONS: tuple[str, ...] = tuple(_BUILDERS)
@@ -182,6 +247,8 @@ CONVENTIONS: tuple[str, ...] = tuple(_BUILDERS)
 
 def _generic(name: str, modulation: str) -> tuple[np.ndarray, float]:
     gray = name == "gray"
+    if _RULES.get(modulation, PLAIN).differential:
+        return _differential(modulation, gray)
     if modulation.endswith("psk"):
         return _psk(modulation, gray)
     return _square_qam(modulation, gray)
@@ -193,8 +260,11 @@ def _is_gray(points: np.ndarray) -> bool:
 
 
 @lru_cache(maxsize=None)
-def get_convention(name: str, modulation: str) -> Convention:
+def get_convention(name: str, modulation: str, ring_ratio: float | None = None) -> Convention:
     """Look up the table of ``name`` for ``modulation``.
+
+    ``ring_ratio`` is the APSK ring ratio (outer over inner radius; default: that of code rate
+    2/3, EN 302 307-1 Table 9); other modulations take none.
 
     Raises
     ------
@@ -217,14 +287,24 @@ def get_convention(name: str, modulation: str) -> Convention:
     if modulation not in mods:
         raise ConfigError(f"convention {name!r} defines no {modulation}; it defines "
                           f"{', '.join(mods)}")
-    points, norm = builder(modulation) if builder else _generic(name, modulation)
+    apsk = modulation.endswith("apsk")
+    if ring_ratio is not None and not apsk:
+        raise ConfigError(f"{modulation} has no ring ratio")
+    if apsk:
+        ring_ratio = RING_RATIOS["2/3"] if ring_ratio is None else float(ring_ratio)
+        if not ring_ratio > 1:
+            raise ConfigError(f"ring ratio {ring_ratio!r}: expected a number above 1")
+        points, norm = builder(modulation, ring_ratio)
+    else:
+        points, norm = builder(modulation) if builder else _generic(name, modulation)
     points = np.asarray(points, dtype=np.complex128)
     points.setflags(write=False)
     return Convention(name=name, modulation=modulation, points=points, normalisation=norm,
-                      is_gray=_is_gray(points), source=source)
+                      is_gray=_is_gray(points), source=source,
+                      rule=_RULES.get(modulation, PLAIN), ring_ratio=ring_ratio)
 
 
-def conventions_for(modulation: str) -> list[Convention]:
+def conventions_for(modulation: str, ring_ratio: float | None = None) -> list[Convention]:
     """Every convention that defines ``modulation``, in preference order."""
-    return [get_convention(n, modulation) for n in CONVENTION_ORDER
+    return [get_convention(n, modulation, ring_ratio) for n in CONVENTION_ORDER
             if modulation in _BUILDERS[n][0]]
