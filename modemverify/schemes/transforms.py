@@ -312,8 +312,8 @@ def explain_rings(reference: np.ndarray, device: np.ndarray,
 def explain_rule(found: str, claimed_rule, *, name: str) -> str:
     """The reason when the device follows another symbol rule than the claimed one: ``found``
     says how (from :func:`~modemverify.schemes.rules.rule_family`)."""
-    return (f"{found} (the {name} convention: {claimed_rule.describe()}); with that rule the "
-            f"device's table is the {name} table")
+    return (f"{found} (claimed, by the {name} convention: {claimed_rule.describe()}); read "
+            f"that way, the device's table is the {name} table")
 
 
 def _reversed_increments(rels: list[Relation]) -> Relation | None:

@@ -194,3 +194,13 @@ def test_1024qam_ieee80211_rule():
     want = (level[lab >> 5] + 1j * level[lab & 31]) / np.sqrt(682)
     c = get_convention("ieee802.11", "1024qam")
     assert np.allclose(c.points, want) and c.is_gray
+
+
+@pytest.mark.parametrize("mod,conv,device", [
+    ("pi/2-bpsk", "3gpp", lambda: Pi2Bpsk()),
+    ("dqpsk", "gray", lambda: Dpsk(*DQPSK)),
+    ("pi/4-dqpsk", "gray", lambda: Dpsk(*DQPSK, offset=np.pi / 4))])
+def test_evm_of_a_correct_rule_device_is_zero(bench_for, mod, conv, device):
+    # the ideal symbols follow the scheme's rule (no published limit: one given)
+    [v] = run(bench_for(device(), mod, conv), "evm", limit_percent=1.0)
+    assert v.outcome == "pass" and v.statistic < 1e-6, v.reason
