@@ -204,3 +204,27 @@ def test_evm_of_a_correct_rule_device_is_zero(bench_for, mod, conv, device):
     # the ideal symbols follow the scheme's rule (no published limit: one given)
     [v] = run(bench_for(device(), mod, conv), "evm", limit_percent=1.0)
     assert v.outcome == "pass" and v.statistic < 1e-6, v.reason
+
+
+# --- identify --------------------------------------------------------------------------------
+def test_identify_names_the_position_dependent_turn():
+    from conftest import make_spec
+
+    from modemverify.adapters.python import PythonAdapter
+    from modemverify.identify import identify
+    r = identify(make_spec("bpsk", "3gpp"), adapter=PythonAdapter(Pi2Bpsk()))
+    assert r.symbol_rule is not None and "+90 degrees on odd positions" in r.symbol_rule
+    assert r.memoryless and r.matches[0] == "3gpp"
+    assert "Symbol rule:" in r.render()
+    r = identify(make_spec("pi/2-bpsk", "3gpp"), adapter=PythonAdapter(Pi2Bpsk(turn_on=0)))
+    assert "even positions instead of odd" in r.symbol_rule
+
+
+def test_identify_names_a_missing_differential_encoding():
+    from conftest import make_spec
+
+    from modemverify.adapters.python import PythonAdapter
+    from modemverify.identify import identify
+    r = identify(make_spec("dqpsk", "gray"),
+                 adapter=PythonAdapter(Dpsk(*DQPSK, differential=False)))
+    assert "not the phase change" in r.symbol_rule and r.matches == ["gray"]
