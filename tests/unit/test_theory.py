@@ -414,3 +414,36 @@ def test_dqpsk_penalty_over_coherent_qpsk():
     # against coherent Gray QPSK at BER 1e-5 (9.588 dB coherent)
     gap = ebn0_for_ber("dqpsk", 1e-5) - ebn0_for_ber("qpsk", 1e-5)
     assert 2.2 < gap < 2.5
+
+
+# ---------------------------------------------------------------------------------------------
+# any constellation by integration over the decision regions (APSK)
+
+
+@pytest.mark.parametrize("mod,conv", [("qpsk", "3gpp"), ("16qam", "3gpp"), ("8psk", "dvb-s2"),
+                                      ("64qam", "ieee802.11")])
+def test_region_integration_reproduces_the_closed_forms(mod, conv):
+    # Gray QPSK Q(sqrt(2 Eb/N0)) (Proakis & Salehi, ch. 4, from memory), square QAM Cho & Yoon
+    # (IEEE Trans. Commun. 50(7), 2002), 8PSK by the exact phase density: the integration over
+    # the Voronoi cells must give the same BER
+    from modemverify.schemes.conventions import get_convention
+    pts = get_convention(conv, mod).points
+    for db in [0.0, 4.0, 8.0, 12.0]:
+        assert theory.constellation_ber(pts, db) == pytest.approx(ber(mod, db), rel=1e-6)
+
+
+def test_16apsk_region_integration_inside_a_monte_carlo_interval():
+    # no closed form for APSK: an independent Monte Carlo of nearest-point decisions on the
+    # DVB-S2 16APSK table (ETSI EN 302 307-1 5.4.3, gamma 3.15) must hold the integrated BER
+    # inside its 99.9 % Clopper-Pearson interval (Clopper & Pearson, Biometrika 1934)
+    from modemverify.schemes.conventions import get_convention
+    pts = get_convention("dvb-s2", "16apsk").points
+    db, n = 8.0, 200_000
+    rng = np.random.default_rng(2026)
+    sent = rng.integers(0, 16, n)
+    n0 = 1.0 / (4 * lin(db))
+    y = pts[sent] + np.sqrt(n0 / 2) * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
+    dec = np.abs(y[:, None] - pts[None, :]).argmin(axis=1)
+    errors = int(np.unpackbits(np.bitwise_xor(sent, dec).astype(np.uint8)).sum())
+    ci = stats.binomtest(errors, 4 * n).proportion_ci(confidence_level=0.999)
+    assert ci.low < theory.constellation_ber(pts, db) < ci.high
