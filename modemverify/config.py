@@ -64,12 +64,13 @@ SCHEME_OPTIONS: dict[str, Opt] = {
                       + ", ".join(MODULATIONS), choices=tuple(MODULATIONS), required=True),
     "convention": Opt("choice", None, "the labelling the device claims (required): "
                       + ", ".join(CONVENTIONS), choices=CONVENTIONS, required=True),
-    "ring_ratio": Opt("number", None, "APSK only: outer over inner ring radius (above 1; "
-                      "default: from code_rate, or 3.15, the ratio of code rate 2/3)",
-                      minimum=1, exclusive_minimum=True),
-    "code_rate": Opt("choice", None, "16APSK only: the DVB-S2 code rate that fixes the ring "
-                     "ratio (ETSI EN 302 307-1 Table 9): " + ", ".join(RING_RATIOS),
-                     choices=tuple(RING_RATIOS)),
+    "ring_ratio": Opt("numbers", None, "APSK only: each ring's radius over the inner ring's, "
+                      "increasing, above 1 (16APSK one number, 32APSK two; default: from "
+                      "code_rate, or that of rate 2/3 / 3/4)", minimum=1, exclusive_minimum=True),
+    "code_rate": Opt("choice", None, "APSK only: the DVB-S2 code rate that fixes the ring "
+                     "ratios (ETSI EN 302 307-1 Tables 9 and 10): "
+                     + ", ".join(sorted({r for t in RING_RATIOS.values() for r in t})),
+                     choices=tuple(sorted({r for t in RING_RATIOS.values() for r in t}))),
     # bounded so that the largest block a check sends (2^17 bits of BPSK) stays a few hundred
     # MB of complex128 samples: 2^17 symbols x 256 samples x 16 bytes = 512 MiB
     "samples_per_symbol": Opt("int", 1, "samples per symbol at the device's output (1 to 256)",
@@ -168,7 +169,18 @@ def _parse_scheme(raw: Any, file: str | None) -> SchemeSpec:
             raise ConfigError(f"ring_ratio={ring!r} and code_rate={opts['code_rate']!r}: give "
                               f"one (the code rate fixes the ring ratio)", file=file,
                               key="scheme.ring_ratio")
-        ring = RING_RATIOS[opts["code_rate"]]
+        rates = RING_RATIOS[opts["modulation"]]
+        if opts["code_rate"] not in rates:
+            raise ConfigError(f"code_rate={opts['code_rate']!r}: DVB-S2 {opts['modulation']} "
+                              f"has the code rates {', '.join(rates)}", file=file,
+                              key="scheme.code_rate")
+        ring = rates[opts["code_rate"]]
+    if ring is not None:
+        ring = tuple(ring)
+        try:
+            get_convention("dvb-s2", opts["modulation"], ring)
+        except ConfigError as exc:
+            raise ConfigError(exc.raw_message, file=file, key="scheme.ring_ratio") from None
     try:
         get_convention(opts["convention"], opts["modulation"], ring)
     except ConfigError as exc:
@@ -191,5 +203,6 @@ def _parse_scheme(raw: Any, file: str | None) -> SchemeSpec:
     align = validate_options(ALIGNMENT_OPTIONS, given, file=file, key="scheme.alignment")
     align = {name: (align[name] if name in given else defaults[name]) for name in align}
     return SchemeSpec(modulation=opts["modulation"], convention=opts["convention"],
-                      ring_ratio=ring, samples_per_symbol=sps, llr_positive_bit=opts["llr_positive_bit"],
+                      ring_ratio=ring, samples_per_symbol=sps,
+                      llr_positive_bit=opts["llr_positive_bit"],
                       pulse=pulse, tail_samples=tail, alignment=align)

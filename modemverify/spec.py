@@ -23,8 +23,8 @@ DEFAULT_TIMEOUT_S = 10.0
 class SchemeSpec:
     modulation: str
     convention: str
-    #: APSK: outer over inner ring radius (None: the convention's default)
-    ring_ratio: float | None = None
+    #: APSK: each ring's radius over the inner ring's (None: the convention's default)
+    ring_ratio: tuple[float, ...] | None = None
     samples_per_symbol: int = 1
     llr_positive_bit: int = 0
     #: the declared pulse (rectangular by default)

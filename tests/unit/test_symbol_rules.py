@@ -143,7 +143,7 @@ def apsk16_table(gamma, outer_offset=np.pi / 12):
 def test_16apsk_table_per_code_rate(bench_for, rate, gamma):
     from conftest import make_spec
     c = make_spec("16apsk", "dvb-s2", code_rate=rate).scheme.reference
-    assert c.ring_ratio == gamma
+    assert c.ring_ratio == (gamma,)
     assert np.allclose(c.points, apsk16_table(gamma))
     assert np.isclose(np.mean(np.abs(c.points) ** 2), 1.0)
 
@@ -228,3 +228,78 @@ def test_identify_names_a_missing_differential_encoding():
     r = identify(make_spec("dqpsk", "gray"),
                  adapter=PythonAdapter(Dpsk(*DQPSK, differential=False)))
     assert "not the phase change" in r.symbol_rule and r.matches == ["gray"]
+
+
+# --- 32APSK --------------------------------------------------------------------------------
+# ETSI EN 302 307-1 5.4.4, Figure 14 (figure number from memory): inner ring R1 at pi/4 +
+# m pi/2: 10001, 10101, 10111, 10011; middle ring R2 = gamma1 R1 at pi/12 + m pi/6: 10000,
+# 00000, 00001, 00101, 00100, 10100, 10110, 00110, 00111, 00011, 00010, 10010; outer ring
+# R3 = gamma2 R1 at m pi/8: 11000, 01000, 11001, 01001, 01101, 11101, 01100, 11100, 11110,
+# 01110, 11111, 01111, 01011, 11011, 01010, 11010 (two public DVB-S2 mappers agree);
+# Table 10: (gamma1, gamma2) = 3/4 (2.84, 5.27), 4/5 (2.72, 4.87), 5/6 (2.64, 4.64),
+# 8/9 (2.54, 4.33), 9/10 (2.53, 4.30)
+RINGS32 = (
+    (["10001", "10101", "10111", "10011"], np.pi / 4),
+    (["10000", "00000", "00001", "00101", "00100", "10100", "10110", "00110", "00111",
+      "00011", "00010", "10010"], np.pi / 12),
+    (["11000", "01000", "11001", "01001", "01101", "11101", "01100", "11100", "11110",
+      "01110", "11111", "01111", "01011", "11011", "01010", "11010"], 0.0))
+
+
+def apsk32_table(g1, g2):
+    t = np.empty(32, complex)
+    for (labels, start), r in zip(RINGS32, (1.0, g1, g2)):
+        for m, lab in enumerate(labels):
+            t[int(lab, 2)] = r * np.exp(1j * (start + m * 2 * np.pi / len(labels)))
+    return t / np.sqrt(np.mean(np.abs(t) ** 2))
+
+
+@pytest.mark.parametrize("rate,g1,g2", [("3/4", 2.84, 5.27), ("4/5", 2.72, 4.87),
+                                        ("5/6", 2.64, 4.64), ("8/9", 2.54, 4.33),
+                                        ("9/10", 2.53, 4.30)])
+def test_32apsk_table_per_code_rate(rate, g1, g2):
+    from conftest import make_spec
+    c = make_spec("32apsk", "dvb-s2", code_rate=rate).scheme.reference
+    assert c.ring_ratio == (g1, g2)
+    assert np.allclose(c.points, apsk32_table(g1, g2))
+
+
+def test_32apsk_correct_passes_and_wrong_outer_ring_is_named(bench_for):
+    [v] = run(bench_for(TableModem(apsk32_table(2.84, 5.27), 5), "32apsk", "dvb-s2",
+                        code_rate="3/4"), "mapping")
+    assert v.outcome == "pass", v.reason
+    [v] = run(bench_for(TableModem(apsk32_table(2.84, 4.87), 5), "32apsk", "dvb-s2",
+                        code_rate="3/4"), "mapping")
+    assert v.outcome == "fail" and "ring ratio 4.87 instead of 5.27 (ring 3 to ring 1)" \
+        in v.reason, v.reason
+
+
+def test_ring_ratio_keys_are_checked():
+    from conftest import make_spec
+
+    from modemverify.errors import ConfigError
+    with pytest.raises(ConfigError, match="only an APSK modulation"):
+        make_spec("16qam", "3gpp", ring_ratio=3.0)
+    with pytest.raises(ConfigError, match="give one"):
+        make_spec("16apsk", "dvb-s2", ring_ratio=3.0, code_rate="2/3")
+    with pytest.raises(ConfigError, match="has 2 ring ratios"):
+        make_spec("32apsk", "dvb-s2", ring_ratio=3.0)
+    with pytest.raises(ConfigError, match="expected one of 2/3"):
+        make_spec("16apsk", "dvb-s2", code_rate="1/2")
+    with pytest.raises(ConfigError, match="32apsk has the code rates 3/4"):
+        make_spec("32apsk", "dvb-s2", code_rate="2/3")
+    with pytest.raises(ConfigError, match="expected a value > 1"):
+        make_spec("16apsk", "dvb-s2", ring_ratio=0.5)
+
+
+def test_ber_without_theory_says_so(bench_for):
+    [v] = run(bench_for(TableModem(apsk16_table(3.15), 4), "16apsk", "dvb-s2"), "ber")
+    assert v.outcome == "skipped" and "no theory curve for 16apsk" in v.reason
+
+
+def test_decreasing_ring_ratios_are_refused():
+    from conftest import make_spec
+
+    from modemverify.errors import ConfigError
+    with pytest.raises(ConfigError, match="increasing numbers above 1"):
+        make_spec("32apsk", "dvb-s2", ring_ratio=[5.0, 2.0])
