@@ -52,7 +52,7 @@ class MappingOracle(Oracle):
                                            or differing_labels(conv.points, table.points, tol)[1]):
             other = _other_rule(bench, tol)
             if other is not None:
-                rule, found = other
+                _, found = other
                 details["symbol_rule"] = found
                 return [Verdict(self.name, "fail", explain_rule(found, conv.rule,
                                                                 name=conv.name),

@@ -259,8 +259,8 @@ _BUILDERS = {
     "3gpp": (("bpsk", "pi/2-bpsk", "qpsk") + _QAM, _3gpp,
              "3GPP TS 38.211 5.1 (TS 36.211 7.1; 5.1.1 pi/2-BPSK, 5.1.7 1024QAM)"),
     "ieee802.11": (("bpsk", "qpsk") + _QAM, _ieee80211,
-                   "IEEE Std 802.11-2007 17.3.5.7, Tables 17-6 to 17-10 (1024-QAM: the same "
-                   "rule in the HE PHY of IEEE 802.11ax, from memory)"),
+                   ("IEEE Std 802.11-2007 17.3.5.7, Tables 17-6 to 17-10 (1024-QAM: the same "
+                    "rule in the HE PHY of IEEE 802.11ax, from memory)")),
     "dvb-s2": (("qpsk", "8psk", "16apsk", "32apsk"), _dvbs2,
                "ETSI EN 302 307-1 5.4.1-5.4.4, Figures 9-10 and 13-14, Tables 9-10"),
     "gray": (_GENERIC, None, "generic binary-reflected Gray labelling (common practice)"),

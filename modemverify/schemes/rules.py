@@ -22,7 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["SymbolRule", "PLAIN", "apply_rule", "undo_rule", "rule_family"]
+__all__ = ["PLAIN", "SymbolRule", "apply_rule", "rule_family", "undo_rule"]
 
 
 @dataclass(frozen=True)
@@ -122,29 +122,29 @@ def rule_family(rule: SymbolRule) -> list[tuple[SymbolRule, str]]:
         d = _deg(rule.turn_deg)
         out += [
             (SymbolRule(rule.turn_deg, other, rule.differential),
-             f"the {abs(float(_deg(rule.turn_deg))):g}-degree turn is applied on {other} "
-             f"positions instead of {rule.turn_on}"),
+             (f"the {abs(float(_deg(rule.turn_deg))):g}-degree turn is applied on {other} "
+              f"positions instead of {rule.turn_on}")),
             (SymbolRule(-rule.turn_deg, rule.turn_on, rule.differential),
-             f"the turn on {rule.turn_on} positions is {_deg(-rule.turn_deg)} degrees instead "
-             f"of {d}"),
+             (f"the turn on {rule.turn_on} positions is {_deg(-rule.turn_deg)} degrees "
+              f"instead of {d}")),
             (SymbolRule(-rule.turn_deg, other, rule.differential),
-             f"the turn is {_deg(-rule.turn_deg)} degrees on {other} positions instead of {d} "
-             f"on {rule.turn_on}"),
+             (f"the turn is {_deg(-rule.turn_deg)} degrees on {other} positions instead of "
+              f"{d} on {rule.turn_on}")),
             (SymbolRule(0.0, rule.turn_on, rule.differential),
-             f"no position-dependent rotation: the {d}-degree turn on {rule.turn_on} positions "
-             f"is missing"),
+             (f"no position-dependent rotation: the {d}-degree turn on {rule.turn_on} "
+              f"positions is missing")),
         ]
     if rule.differential:
         out.append((SymbolRule(rule.turn_deg, rule.turn_on, False),
-                    "the label sets the absolute point, not the phase change from the previous "
-                    "symbol (no differential encoding)"))
+                    ("the label sets the absolute point, not the phase change from the "
+                     "previous symbol (no differential encoding)")))
     if rule.plain:
         for on in ("odd", "even"):
             for deg in (90.0, -90.0):
                 out.append((SymbolRule(deg, on),
-                            f"the points are turned by {_deg(deg)} degrees on {on} positions "
-                            f"(a position-dependent rotation, as in pi/2-BPSK)"))
+                            (f"the points are turned by {_deg(deg)} degrees on {on} "
+                             f"positions (a position-dependent rotation, as in pi/2-BPSK)")))
         out.append((SymbolRule(differential=True),
-                    "the label sets the phase change from the previous symbol (differential "
-                    "encoding)"))
+                    ("the label sets the phase change from the previous symbol (differential "
+                     "encoding)")))
     return out

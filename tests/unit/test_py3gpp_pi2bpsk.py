@@ -11,8 +11,8 @@ import numpy as np
 import pytest
 from conftest import make_bench
 
-from modemverify.oracles import ORACLES
 from modemverify.options import validate_options
+from modemverify.oracles import ORACLES
 from modemverify.runner import run_oracle
 
 py3gpp = pytest.importorskip("py3gpp", reason="py3gpp (the NR helper library on the package "

@@ -12,8 +12,8 @@ import numpy as np
 import pytest
 from conftest import TableModem
 
-from modemverify.oracles import ORACLES
 from modemverify.options import validate_options
+from modemverify.oracles import ORACLES
 from modemverify.runner import run_oracle
 from modemverify.schemes.conventions import get_convention
 
