@@ -68,7 +68,7 @@ from modemverify.schemes.labels import gray_code, hamming
 __all__ = [
     "THEORY_MODULATIONS", "ber", "ser", "ebn0_for_ber", "DEFAULT_BER_TARGETS",
     "default_ebn0_points", "psk_ser", "psk_ber", "qam_ser", "qam_ber", "q_function",
-    "dqpsk_ber", "dpsk_ser", "constellation_ber",
+    "dqpsk_ber", "dpsk_ser", "constellation_ber", "detection",
 ]
 
 #: Names accepted by :func:`ber`, :func:`ser` and :func:`ebn0_for_ber`.
@@ -547,6 +547,18 @@ def constellation_ber(points, ebn0_db, labels=None):
         p = _region_probabilities(pts, cells, sigma)
         vals[i] = float(np.sum(p * h) / (m * k))
     return _out(vals.reshape(g.shape), scalar)
+
+
+def detection(modulation: str) -> str:
+    """How the receiver of :func:`ber`'s curve decides: "differential detection" for DBPSK,
+    DQPSK and pi/4-DQPSK, "coherent detection" otherwise.
+
+    >>> detection("dqpsk"), detection("16qam")
+    ('differential detection', 'coherent detection')
+    """
+    mod = _modulation(modulation)
+    return ("differential detection" if mod in ("dbpsk", "dqpsk", "pi/4-dqpsk")
+            else "coherent detection")
 
 
 def ber(modulation: str, ebn0_db):
