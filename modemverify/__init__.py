@@ -5,7 +5,7 @@ first use, so that ``import modemverify`` stays cheap for worker and device proc
 
 >>> import modemverify
 >>> sorted(modemverify.MODULATIONS)[:3]
-['16qam', '256qam', '64qam']
+['1024qam', '16apsk', '16qam']
 """
 
 from __future__ import annotations

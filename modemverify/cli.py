@@ -23,8 +23,12 @@ from .plan import plan, render_plan
 from .report.outputs import OutputLock, check_output_file, check_output_folder
 from .runner import DEFAULT_SEED
 from .schemes.conventions import CONVENTIONS, MODULATIONS
+<<<<<<< HEAD
 from .schemes.theory import THEORY_MODULATIONS, ber, ebn0_for_ber, ser
 from .selftest import DEFAULT_MODULATIONS, DEFAULT_SEEDS, certify
+=======
+from .schemes.theory import THEORY_MODULATIONS, ber, detection, ebn0_for_ber, ser
+>>>>>>> schemes
 from .session import (
     EXIT_FAIL,
     EXIT_INTERRUPTED,
@@ -301,7 +305,7 @@ def cmd_theory(args) -> int:
     head = f"{'Eb/N0 dB':>8}  {'BER':>11}  {'SER':>11}"
     if args.margin is not None:
         head += f"  {'limit BER':>11}"
-    print(f"{mod} over AWGN, coherent detection, Gray labelling (exact; see "
+    print(f"{mod} over AWGN, {detection(mod)}, Gray labelling (exact; see "
           f"modemverify.schemes.theory for the formulas and references)")
     print(head)
     for x in grid:

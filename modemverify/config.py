@@ -16,7 +16,7 @@ from .dsp.pulses import PULSE_SHAPES, PulseShape
 from .errors import ConfigError, UnknownNameError
 from .options import Opt, validate_options
 from .oracles import validate_checks
-from .schemes.conventions import CONVENTIONS, MODULATIONS, get_convention
+from .schemes.conventions import CONVENTIONS, MODULATIONS, RING_RATIOS, get_convention
 from .spec import DEFAULT_TIMEOUT_S, DeviceSpec, SchemeSpec
 
 __all__ = [
@@ -78,6 +78,13 @@ SCHEME_OPTIONS: dict[str, Opt] = {
                       + ", ".join(MODULATIONS), choices=tuple(MODULATIONS), required=True),
     "convention": Opt("choice", None, "the labelling the device claims (required): "
                       + ", ".join(CONVENTIONS), choices=CONVENTIONS, required=True),
+    "ring_ratio": Opt("numbers", None, "APSK only: each ring's radius over the inner ring's, "
+                      "increasing, above 1 (16APSK one number, 32APSK two; default: from "
+                      "code_rate, or that of rate 2/3 / 3/4)", minimum=1, exclusive_minimum=True),
+    "code_rate": Opt("choice", None, "APSK only: the DVB-S2 code rate that fixes the ring "
+                     "ratios (ETSI EN 302 307-1 Tables 9 and 10): "
+                     + ", ".join(sorted({r for t in RING_RATIOS.values() for r in t})),
+                     choices=tuple(sorted({r for t in RING_RATIOS.values() for r in t}))),
     # bounded so that the largest block a check sends (2^17 bits of BPSK) stays a few hundred
     # MB of complex128 samples: 2^17 symbols x 256 samples x 16 bytes = 512 MiB
     "samples_per_symbol": Opt("int", 1, "samples per symbol at the device's output (1 to 256)",
@@ -168,8 +175,30 @@ def _parse_scheme(raw: Any, file: str | None) -> SchemeSpec:
     if isinstance(raw.get("modulation"), str):
         raw["modulation"] = raw["modulation"].lower()
     opts = validate_options(SCHEME_OPTIONS, raw, file=file, key="scheme")
+    ring = opts["ring_ratio"]
+    for key in ("ring_ratio", "code_rate"):
+        if opts[key] is not None and not opts["modulation"].endswith("apsk"):
+            raise ConfigError(f"{key}={opts[key]!r}: only an APSK modulation has a ring ratio, "
+                              f"not {opts['modulation']}", file=file, key=f"scheme.{key}")
+    if opts["code_rate"] is not None:
+        if ring is not None:
+            raise ConfigError(f"ring_ratio={ring!r} and code_rate={opts['code_rate']!r}: give "
+                              f"one (the code rate fixes the ring ratio)", file=file,
+                              key="scheme.ring_ratio")
+        rates = RING_RATIOS[opts["modulation"]]
+        if opts["code_rate"] not in rates:
+            raise ConfigError(f"code_rate={opts['code_rate']!r}: DVB-S2 {opts['modulation']} "
+                              f"has the code rates {', '.join(rates)}", file=file,
+                              key="scheme.code_rate")
+        ring = rates[opts["code_rate"]]
+    if ring is not None:
+        ring = tuple(ring)
+        try:
+            get_convention("dvb-s2", opts["modulation"], ring)
+        except ConfigError as exc:
+            raise ConfigError(exc.raw_message, file=file, key="scheme.ring_ratio") from None
     try:
-        get_convention(opts["convention"], opts["modulation"])
+        get_convention(opts["convention"], opts["modulation"], ring)
     except ConfigError as exc:
         raise ConfigError(f"convention={opts['convention']!r}: {exc.raw_message}", file=file,
                           key="scheme.convention") from None
@@ -190,5 +219,6 @@ def _parse_scheme(raw: Any, file: str | None) -> SchemeSpec:
     align = validate_options(ALIGNMENT_OPTIONS, given, file=file, key="scheme.alignment")
     align = {name: (align[name] if name in given else defaults[name]) for name in align}
     return SchemeSpec(modulation=opts["modulation"], convention=opts["convention"],
-                      samples_per_symbol=sps, llr_positive_bit=opts["llr_positive_bit"],
+                      ring_ratio=ring, samples_per_symbol=sps,
+                      llr_positive_bit=opts["llr_positive_bit"],
                       pulse=pulse, tail_samples=tail, alignment=align)

@@ -15,6 +15,7 @@ from .oracles._table import measure_table
 from .schemes.conventions import conventions_for
 from .schemes.geometry import MEASURED_RTOL, all_distinct, nearest_neighbour_pairs
 from .schemes.labels import hamming, label_string
+from .schemes.rules import rule_family
 from .schemes.transforms import DEFAULT_TOLERANCE, relate
 from .spec import DeviceSpec
 
@@ -52,6 +53,11 @@ class IdentifyResult:
     #: other conventions the table relates to, with their descriptions
     others: dict[str, list[str]] = field(default_factory=dict)
     label_order: str = "each label lists its bits in the order they are fed to modulate"
+    #: the claimed modulation's symbol rule, when the table was read under one
+    claimed_rule: str | None = None
+    #: when the table depends on its neighbours under the claimed rule but not under another
+    #: (a turn on other positions, a differential encoding...): how it differs
+    symbol_rule: str | None = None
 
     def __repr__(self) -> str:
         what = (f"matches {', '.join(self.matches)}" if self.matches else
@@ -75,6 +81,15 @@ def identify(spec: DeviceSpec, tolerance: float = DEFAULT_TOLERANCE, *,
     bench = open_bench(spec, adapter)
     try:
         table = measure_table(bench)
+        rule_text = None
+        if table.source == "modulate" and not np.all(table.spread <= tolerance):
+            # the points depend on the neighbours under the claimed rule: is there a rule
+            # (position, previous symbol) under which they do not?
+            for rule, found in rule_family(bench.convention.rule):
+                other = measure_table(bench, rule)
+                if np.all(other.spread <= tolerance):
+                    table, rule_text = other, found
+                    break
     finally:
         bench.device.close()
     k = bench.k
@@ -94,9 +109,11 @@ def identify(spec: DeviceSpec, tolerance: float = DEFAULT_TOLERANCE, *,
         mapping={label_string(l, k): [float(p.real), float(p.imag)] for l, p in enumerate(pts)},
         average_energy=energy, normalisation=float(1 / np.sqrt(energy)) if energy else None,
         memoryless=bool(np.all(table.spread <= tolerance)), gray=gray,
-        mean_neighbour_hamming=mean_h)
+        mean_neighbour_hamming=mean_h, symbol_rule=rule_text,
+        claimed_rule=(None if bench.convention.rule.plain
+                      else bench.convention.rule.describe()))
     candidates = []
-    for conv in conventions_for(spec.scheme.modulation):
+    for conv in conventions_for(spec.scheme.modulation, spec.scheme.ring_ratio):
         rels = relate(conv.points, pts, tolerance) if distinct else []
         if rels:
             candidates.append((rels[0].cost, conv, rels))
@@ -129,6 +146,10 @@ def render_identification(result: IdentifyResult) -> str:
     if info["normalisation"]:
         lines.append(f"Average symbol energy: {info['average_energy']:.6g} "
                      f"(normalisation 1/{1 / info['normalisation']:.6g})")
+    if info.get("claimed_rule"):
+        lines.append(f"Table read under the {info['modulation']} rule: {info['claimed_rule']}")
+    if info.get("symbol_rule"):
+        lines.append(f"Symbol rule: {info['symbol_rule']}; the table above is read under it")
     if not info["memoryless"]:
         lines.append("WARNING: the point for some labels depends on the neighbouring symbols")
     if info["closest_convention"] is None:

@@ -23,6 +23,8 @@ DEFAULT_TIMEOUT_S = 10.0
 class SchemeSpec:
     modulation: str
     convention: str
+    #: APSK: each ring's radius over the inner ring's (None: the convention's default)
+    ring_ratio: tuple[float, ...] | None = None
     samples_per_symbol: int = 1
     llr_positive_bit: int = 0
     #: the declared pulse (rectangular by default)
@@ -48,7 +50,7 @@ class SchemeSpec:
 
     @property
     def reference(self) -> Convention:
-        return get_convention(self.convention, self.modulation)
+        return get_convention(self.convention, self.modulation, self.ring_ratio)
 
     def describe(self) -> str:
         pulse = f", {self.pulse.describe()}" if not self.pulse.is_rectangular else ""

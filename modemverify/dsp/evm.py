@@ -34,12 +34,15 @@ __all__ = [
 ]
 
 #: Base-station EVM limits in percent, 3GPP TS 38.104, 6.5.2.2, Table 6.5.2.2-1 (NR; the same
-#: four values as LTE's TS 36.104 Table 6.5.2-1, from memory for LTE).
+#: four values as LTE's TS 36.104 Table 6.5.2-1, from memory for LTE). 1024QAM: 2.5 %, added to
+#: the same table in Release 17 (FR1; from memory).
 DEFAULT_EVM_LIMITS: dict[str, float] = {"qpsk": 17.5, "16qam": 12.5, "64qam": 8.0,
-                                        "256qam": 3.5}
+                                        "256qam": 3.5, "1024qam": 2.5}
 
 #: Modulations :func:`evm_limit` knows; those without a 3GPP limit map to None.
-EVM_MODULATIONS: tuple[str, ...] = ("bpsk", "qpsk", "8psk", "16qam", "64qam", "256qam")
+EVM_MODULATIONS: tuple[str, ...] = ("bpsk", "qpsk", "8psk", "16qam", "64qam", "256qam",
+                                    "1024qam", "pi/2-bpsk", "16apsk", "dbpsk", "dqpsk",
+                                    "pi/4-dqpsk")
 
 
 @dataclass(frozen=True)
@@ -156,9 +159,11 @@ def evm(measured_symbols, ideal_symbols, labels=None, *, equalise: bool = False)
 def evm_limit(modulation: str) -> float | None:
     """The 3GPP base-station EVM limit in percent (:data:`DEFAULT_EVM_LIMITS`).
 
-    Returns None for BPSK and 8PSK: TS 38.104 Table 6.5.2.2-1 lists QPSK, 16QAM, 64QAM and
-    256QAM only (and, from memory, NR has pi/2-BPSK only on the uplink and no 8PSK at all),
-    so there is no published figure to hold them to; the caller must supply one.
+    Returns None for BPSK and 8PSK: TS 38.104 Table 6.5.2.2-1 lists QPSK, 16QAM, 64QAM,
+    256QAM and 1024QAM only (and, from memory, NR has pi/2-BPSK only on the uplink, where the
+    UE requirement of TS 38.101-1 applies, and no 8PSK at all), so there is no published
+    base-station figure to hold them to; nor for 16APSK and the differential schemes. The
+    caller must supply one.
 
     Raises
     ------

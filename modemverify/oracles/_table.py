@@ -10,6 +10,7 @@ import numpy as np
 from ..bench import Bench
 from ..schemes.geometry import all_distinct, minimum_distance
 from ..schemes.labels import bits_to_labels, labels_to_bits
+from ..schemes.rules import SymbolRule, undo_rule
 from ..vectors.coverage import de_bruijn_labels
 
 
@@ -30,31 +31,43 @@ class MeasuredTable:
     probe_symbols: int
     #: energy per symbol of the raw device output (None for a demodulate probe)
     energy_per_symbol: float | None = None
+    #: the symbol rule undone before the table was read (the claimed convention's)
+    rule: SymbolRule | None = None
 
 
-def measure_table(bench: Bench) -> MeasuredTable:
-    """Probe the device once per bench (cached); raises AdapterError if the device misbehaves."""
-    if "table" not in bench.cache:
+def measure_table(bench: Bench, rule: SymbolRule | None = None) -> MeasuredTable:
+    """Probe the device once per bench (cached); raises AdapterError if the device misbehaves.
+
+    The table is read with the claimed convention's symbol rule undone, or with ``rule``
+    (the same probe: a device read as if it followed another rule, to name a rule defect).
+    """
+    key = "table" if rule is None else ("table", rule)
+    if key not in bench.cache:
         if bench.device.has("modulate"):
-            bench.cache["table"] = _from_modulate(bench)
+            bench.cache[key] = _from_modulate(bench, rule or bench.convention.rule)
         else:
-            bench.cache["table"] = _from_demodulate(bench)
-    return bench.cache["table"]
+            bench.cache[key] = _from_demodulate(bench)
+    return bench.cache[key]
 
 
-def _reference_spread(bench: Bench, probe) -> float:
+def _reference_spread(bench: Bench, probe, rule: SymbolRule) -> float:
     """The largest deviation of a symbol from its label's mean in the reference's own
-    waveform of the probe (its pulse's residual ISI), at the reference's scale."""
+    waveform of the probe (its pulse's residual ISI), at the reference's scale, read as the
+    device's table is (the same symbol rule undone)."""
     k = bench.k
     ref = bench.reference
-    n = probe.labels.size
+    labels = probe.labels
     sym = ref.symbols(ref.modulate(labels_to_bits(probe.sent, k)), probe.sent.size)
-    sym = sym[probe.pad:probe.pad + n]
+    sym = sym[probe.pad:probe.pad + labels.size]
+    if not rule.plain:
+        sym = undo_rule(sym, rule, start=probe.pad)
+        if rule.differential:
+            labels, sym = labels[1:], sym[1:]
     m = 1 << k
-    counts = np.bincount(probe.labels, minlength=m)
-    means = (np.bincount(probe.labels, weights=sym.real, minlength=m)
-             + 1j * np.bincount(probe.labels, weights=sym.imag, minlength=m)) / counts
-    return float(np.max(np.abs(sym - means[probe.labels]))) if n else 0.0
+    counts = np.maximum(np.bincount(labels, minlength=m), 1)
+    means = (np.bincount(labels, weights=sym.real, minlength=m)
+             + 1j * np.bincount(labels, weights=sym.imag, minlength=m)) / counts
+    return float(np.max(np.abs(sym - means[labels]))) if labels.size else 0.0
 
 
 def _gain(points: np.ndarray, reference: np.ndarray) -> complex:
@@ -63,12 +76,19 @@ def _gain(points: np.ndarray, reference: np.ndarray) -> complex:
     return complex(np.vdot(reference, points) / den) if den > 0 else 1.0
 
 
-def _from_modulate(bench: Bench) -> MeasuredTable:
+def _from_modulate(bench: Bench, rule: SymbolRule) -> MeasuredTable:
     m = 1 << bench.k
     # the probe of every label pair (Bench.label_probe: wrapped by a filter span each side on a
     # shaped waveform, only the middle judged)
     probe = bench.label_probe()
     labels, sym, samples = probe.labels, probe.symbols, probe.samples
+    if not rule.plain:
+        # the judged symbols sit at positions pad... of the sent sequence; a differential
+        # rule judges each symbol against the one before, so the first judged symbol (whose
+        # predecessor is not judged) is left out
+        sym = undo_rule(sym, rule, start=probe.pad)
+        if rule.differential:
+            labels, sym = labels[1:], sym[1:]
     counts = np.bincount(labels, minlength=m)
     points = (np.bincount(labels, weights=sym.real, minlength=m)
               + 1j * np.bincount(labels, weights=sym.imag, minlength=m)) / counts
@@ -85,7 +105,7 @@ def _from_modulate(bench: Bench) -> MeasuredTable:
         # a pulse truncated to its span leaves some ISI of its own (RRC 0.35 over 10 symbols:
         # 0.08 minimum distances of 64QAM): the reference's own modem, on the same probe, has
         # it too, so only the spread beyond the reference's counts against the device
-        spread = np.maximum(spread - _reference_spread(bench, probe) * np.abs(
+        spread = np.maximum(spread - _reference_spread(bench, probe, rule) * np.abs(
             _gain(points, bench.convention.points)), 0.0)
     # energy per symbol, as sum(|x|^2) over the waveform relative to the reference symbols of
     # the same probe (so the probe's one extra label does not bias it): exactly |gain|^2 times
@@ -94,7 +114,7 @@ def _from_modulate(bench: Bench) -> MeasuredTable:
     es = float(np.vdot(samples, samples).real / np.vdot(ref_sym, ref_sym).real
                * np.mean(np.abs(bench.convention.points) ** 2))
     return MeasuredTable(points=points, spread=spread / scale, source="modulate",
-                         probe_symbols=int(labels.size), energy_per_symbol=es)
+                         probe_symbols=int(labels.size), energy_per_symbol=es, rule=rule)
 
 
 def _from_demodulate(bench: Bench) -> MeasuredTable:

@@ -67,7 +67,7 @@ class EvmOracle(Oracle):
         # complex equaliser would hide a rotated or relabelled table)
         measured = bench.device_symbols(raw, n, at_reference_scale=True)
         labels = bits_to_labels(bits, k)
-        ideal = bench.convention.points[labels]
+        ideal = bench.reference.map_symbols(bits)  # under the scheme's symbol rule
         # skip the symbols the filter tails touch at either end of a shaped probe
         edge = bench.spec.scheme.pulse.span if bench.spec.scheme.shaped else 0
         core = slice(edge, n - edge) if n > 4 * edge else slice(None)

@@ -15,7 +15,9 @@ from ..options import Opt
 from ..records import MappingRecord
 from ..schemes.conventions import conventions_for
 from ..schemes.labels import label_string
-from ..schemes.transforms import DEFAULT_TOLERANCE, differing_labels, explain_difference
+from ..schemes.rules import rule_family
+from ..schemes.transforms import (DEFAULT_TOLERANCE, differing_labels, explain_difference,
+                                  explain_rule)
 from ..verdict import Verdict
 from ._table import measure_table
 from .base import Oracle
@@ -46,6 +48,17 @@ class MappingOracle(Oracle):
                              for l, p in enumerate(table.points)},
                    "probe": table.source}
         memory = np.nonzero(table.spread > tol)[0]
+        if table.source == "modulate" and (len(memory)
+                                           or differing_labels(conv.points, table.points, tol)[1]):
+            other = _other_rule(bench, tol)
+            if other is not None:
+                _, found = other
+                details["symbol_rule"] = found
+                return [Verdict(self.name, "fail", explain_rule(found, conv.rule,
+                                                                name=conv.name),
+                                statistic=float(table.spread.max()), limit=tol,
+                                counterexample=f"a de Bruijn sequence of {table.probe_symbols} "
+                                               f"labels", seed=seed, details=details)]
         if len(memory):
             worst = int(memory[np.argmax(table.spread[memory])])
             what = ("decision" if table.source == "demodulate"
@@ -71,7 +84,7 @@ class MappingOracle(Oracle):
                             f"{conv.modulation} points (gain {gain:.4g})",
                             statistic=0.0, limit=tol, seed=seed, details=details)]
         reason, rels = explain_difference(conv.points, table.points, bad, gain, k, tol,
-                                          name=conv.name)
+                                          name=conv.name, differential=conv.rule.differential)
         exactly = [other.name for other in conventions_for(conv.modulation)
                    if other.name != conv.name
                    and not differing_labels(other.points, table.points, tol)[1]]
@@ -86,6 +99,17 @@ class MappingOracle(Oracle):
         details["differing_labels"] = [label_string(l, k) for l in bad]
         return [Verdict(self.name, "fail", reason, statistic=float(len(bad)), limit=0.0,
                         unit="labels differ", counterexample=ce, seed=seed, details=details)]
+
+
+def _other_rule(bench, tol):
+    """(rule, how it differs) when the device's table is the claimed one under another symbol
+    rule (a turn on other positions, no differential encoding...); None otherwise."""
+    conv = bench.convention
+    for rule, found in rule_family(conv.rule):
+        t = measure_table(bench, rule)
+        if np.all(t.spread <= tol) and not differing_labels(conv.points, t.points, tol)[1]:
+            return rule, found
+    return None
 
 
 ORACLE = MappingOracle()

@@ -29,16 +29,47 @@ import numpy as np
 from ..errors import ConfigError, UnknownNameError
 from .geometry import nearest_neighbour_pairs
 from .labels import gray_code, hamming, labels_to_bits
+from .rules import PLAIN, SymbolRule
 
 __all__ = [
     "MODULATIONS", "CONVENTION_ORDER", "Convention", "CONVENTIONS", "get_convention",
-    "conventions_for",
+    "conventions_for", "RING_RATIOS", "ring_ratio_for",
 ]
 
 #: modulation name -> bits per symbol
 MODULATIONS: dict[str, int] = {
-    "bpsk": 1, "qpsk": 2, "8psk": 3, "16qam": 4, "64qam": 6, "256qam": 8,
+    "bpsk": 1, "qpsk": 2, "8psk": 3, "16qam": 4, "64qam": 6, "256qam": 8, "1024qam": 10,
+    "pi/2-bpsk": 1, "16apsk": 4, "32apsk": 5, "dbpsk": 1, "dqpsk": 2, "pi/4-dqpsk": 2,
 }
+
+#: the symbol rule each modulation sends its table under (see :mod:`.rules`); the table of a
+#: differential scheme gives the phase change a label sets
+_RULES: dict[str, SymbolRule] = {
+    "pi/2-bpsk": SymbolRule(turn_deg=90.0, turn_on="odd"),   # TS 38.211 5.1.1
+    "dbpsk": SymbolRule(differential=True),
+    "dqpsk": SymbolRule(differential=True),
+    "pi/4-dqpsk": SymbolRule(differential=True),
+}
+
+#: DVB-S2 ring ratios per code rate, ETSI EN 302 307-1: 16APSK gamma = R2/R1 (5.4.3, Table 9);
+#: 32APSK gamma1 = R2/R1, gamma2 = R3/R1 (5.4.4, Table 10; table numbers from memory)
+RING_RATIOS: dict[str, dict[str, tuple[float, ...]]] = {
+    "16apsk": {"2/3": (3.15,), "3/4": (2.85,), "4/5": (2.75,), "5/6": (2.70,),
+               "8/9": (2.60,), "9/10": (2.57,)},
+    "32apsk": {"3/4": (2.84, 5.27), "4/5": (2.72, 4.87), "5/6": (2.64, 4.64),
+               "8/9": (2.54, 4.33), "9/10": (2.53, 4.30)},
+}
+
+#: the code rate whose ring ratios are the default
+_DEFAULT_RATE = {"16apsk": "2/3", "32apsk": "3/4"}
+
+
+def ring_ratio_for(modulation: str, code_rate: str) -> tuple[float, ...]:
+    """The ring ratios EN 302 307-1 gives ``modulation`` at ``code_rate`` ("3/4")."""
+    table = RING_RATIOS.get(modulation, {})
+    if code_rate not in table:
+        raise UnknownNameError(f"{modulation} code rate", code_rate, table)
+    return table[code_rate]
 
 #: the order in which conventions are preferred when several describe a device equally well
 CONVENTION_ORDER = ("3gpp", "ieee802.11", "dvb-s2", "gray", "natural")
@@ -71,6 +102,10 @@ class Convention:
     normalisation: float
     is_gray: bool
     source: str
+    #: how a symbol follows from its label's point (position, previous symbol)
+    rule: SymbolRule = PLAIN
+    #: APSK: each ring's radius over the inner ring's (None for other modulations)
+    ring_ratio: tuple[float, ...] | None = None
 
     @property
     def bits_per_symbol(self) -> int:
@@ -97,7 +132,9 @@ def _3gpp_axis(bits: np.ndarray) -> np.ndarray:
 def _3gpp(modulation: str) -> tuple[np.ndarray, float]:
     k = MODULATIONS[modulation]
     b = _bits_matrix(k)
-    if modulation == "bpsk":
+    if modulation in ("bpsk", "pi/2-bpsk"):
+        # 5.1.2 BPSK; 5.1.1 pi/2-BPSK is the same point turned by 90 degrees on odd positions
+        # (the rule, in _RULES)
         s = 1 / np.sqrt(2)
         return s * ((1 - 2 * b[:, 0]) + 1j * (1 - 2 * b[:, 0])), s
     i_bits, q_bits = b[:, 0::2], b[:, 1::2]
@@ -156,7 +193,42 @@ def _psk(modulation: str, gray: bool) -> tuple[np.ndarray, float]:
     return pts, 1.0
 
 
-def _dvbs2(modulation: str) -> tuple[np.ndarray, float]:
+#: EN 302 307-1 Figure 13 (16APSK): the labels at increasing angle on the inner ring (from
+#: pi/4, step pi/2) and on the outer ring (from pi/12, step pi/6)
+_APSK16_INNER = (0b1100, 0b1110, 0b1111, 0b1101)
+_APSK16_OUTER = (0b0100, 0b0000, 0b1000, 0b1010, 0b0010, 0b0110, 0b0111, 0b0011, 0b1011,
+                 0b1001, 0b0001, 0b0101)
+
+
+#: EN 302 307-1 Figure 14 (32APSK): inner ring from pi/4, step pi/2; middle ring from pi/12,
+#: step pi/6; outer ring from 0, step pi/8 (two public DVB-S2 mappers agree)
+_APSK32_INNER = (0b10001, 0b10101, 0b10111, 0b10011)
+_APSK32_MIDDLE = (0b10000, 0b00000, 0b00001, 0b00101, 0b00100, 0b10100, 0b10110, 0b00110,
+                  0b00111, 0b00011, 0b00010, 0b10010)
+_APSK32_OUTER = (0b11000, 0b01000, 0b11001, 0b01001, 0b01101, 0b11101, 0b01100, 0b11100,
+                 0b11110, 0b01110, 0b11111, 0b01111, 0b01011, 0b11011, 0b01010, 0b11010)
+
+
+def _apsk(modulation: str, gammas: tuple[float, ...]) -> tuple[np.ndarray, float]:
+    if modulation == "16apsk":
+        rings = ((_APSK16_INNER, np.pi / 4, 1.0), (_APSK16_OUTER, np.pi / 12, gammas[0]))
+    else:
+        rings = ((_APSK32_INNER, np.pi / 4, 1.0), (_APSK32_MIDDLE, np.pi / 12, gammas[0]),
+                 (_APSK32_OUTER, 0.0, gammas[1]))
+    m = 1 << MODULATIONS[modulation]
+    pts = np.empty(m, dtype=complex)
+    for labels, start, radius in rings:
+        n = len(labels)
+        pts[list(labels)] = radius * np.exp(1j * (start + np.arange(n) * 2 * np.pi / n))
+    # R1 so that the average energy is 1 (5.4.3: 4 R1^2 + 12 R2^2 = 16; 5.4.4 likewise)
+    r1 = 1 / np.sqrt(np.mean(np.abs(pts) ** 2))
+    return r1 * pts, r1
+
+
+def _dvbs2(modulation: str, ring_ratio: tuple[float, ...] | None = None
+           ) -> tuple[np.ndarray, float]:
+    if modulation.endswith("apsk"):
+        return _apsk(modulation, ring_ratio)
     if modulation == "qpsk":
         # Figure 9: 00 -> pi/4, 01 -> 7pi/4, 10 -> 3pi/4, 11 -> 5pi/4 (same as 3GPP QPSK).
         angles = np.array([1, 7, 3, 5]) * np.pi / 4
@@ -167,14 +239,32 @@ def _dvbs2(modulation: str) -> tuple[np.ndarray, float]:
     return np.exp(1j * angles), 1.0
 
 
+def _differential(modulation: str, gray: bool) -> tuple[np.ndarray, float]:
+    """Phase changes: DBPSK 0 -> 0, 1 -> pi; DQPSK m*pi/2, pi/4-DQPSK pi/4 + m*pi/2, the
+    change with index m carrying gray(m) or m (common practice)."""
+    m = 1 << MODULATIONS[modulation]
+    idx = np.arange(m)
+    lab = gray_code(idx) if gray else idx
+    offset = np.pi / 4 if modulation == "pi/4-dqpsk" else 0.0
+    pts = np.empty(m, dtype=complex)
+    pts[lab] = np.exp(1j * (2 * np.pi * idx / m + offset))
+    return pts, 1.0
+
+
+#: square QAM orders every QAM convention defines
+_QAM = ("16qam", "64qam", "256qam", "1024qam")
+_GENERIC = tuple(m for m in MODULATIONS if m not in ("pi/2-bpsk", "16apsk", "32apsk"))
+
 _BUILDERS = {
-    "3gpp": (("bpsk", "qpsk", "16qam", "64qam", "256qam"), _3gpp,
-             "3GPP TS 38.211 5.1 (TS 36.211 7.1)"),
-    "ieee802.11": (("bpsk", "qpsk", "16qam", "64qam", "256qam"), _ieee80211,
-                   "IEEE Std 802.11-2007 17.3.5.7, Tables 17-6 to 17-10"),
-    "dvb-s2": (("qpsk", "8psk"), _dvbs2, "ETSI EN 302 307-1 5.4.1-5.4.2, Figures 9-10"),
-    "gray": (tuple(MODULATIONS), None, "generic binary-reflected Gray labelling (common practice)"),
-    "natural": (tuple(MODULATIONS), None, "generic natural-binary labelling (common practice)"),
+    "3gpp": (("bpsk", "pi/2-bpsk", "qpsk") + _QAM, _3gpp,
+             "3GPP TS 38.211 5.1 (TS 36.211 7.1; 5.1.1 pi/2-BPSK, 5.1.7 1024QAM)"),
+    "ieee802.11": (("bpsk", "qpsk") + _QAM, _ieee80211,
+                   ("IEEE Std 802.11-2007 17.3.5.7, Tables 17-6 to 17-10 (1024-QAM: the same "
+                    "rule in the HE PHY of IEEE 802.11ax, from memory)")),
+    "dvb-s2": (("qpsk", "8psk", "16apsk", "32apsk"), _dvbs2,
+               "ETSI EN 302 307-1 5.4.1-5.4.4, Figures 9-10 and 13-14, Tables 9-10"),
+    "gray": (_GENERIC, None, "generic binary-reflected Gray labelling (common practice)"),
+    "natural": (_GENERIC, None, "generic natural-binary labelling (common practice)"),
 }
 
 CONVENTIONS: tuple[str, ...] = tuple(_BUILDERS)
@@ -182,6 +272,8 @@ CONVENTIONS: tuple[str, ...] = tuple(_BUILDERS)
 
 def _generic(name: str, modulation: str) -> tuple[np.ndarray, float]:
     gray = name == "gray"
+    if _RULES.get(modulation, PLAIN).differential:
+        return _differential(modulation, gray)
     if modulation.endswith("psk"):
         return _psk(modulation, gray)
     return _square_qam(modulation, gray)
@@ -193,8 +285,12 @@ def _is_gray(points: np.ndarray) -> bool:
 
 
 @lru_cache(maxsize=None)
-def get_convention(name: str, modulation: str) -> Convention:
+def get_convention(name: str, modulation: str, ring_ratio=None) -> Convention:
     """Look up the table of ``name`` for ``modulation``.
+
+    ``ring_ratio`` is the APSK ring ratio: 16APSK R2/R1 (a number), 32APSK R2/R1 and R3/R1 (two);
+    default: those of code rate 2/3 (16APSK) or 3/4 (32APSK), EN 302 307-1 Tables 9 and 10.
+    Other modulations take none.
 
     Raises
     ------
@@ -217,14 +313,35 @@ def get_convention(name: str, modulation: str) -> Convention:
     if modulation not in mods:
         raise ConfigError(f"convention {name!r} defines no {modulation}; it defines "
                           f"{', '.join(mods)}")
-    points, norm = builder(modulation) if builder else _generic(name, modulation)
+    apsk = modulation.endswith("apsk")
+    if ring_ratio is not None and not apsk:
+        raise ConfigError(f"{modulation} has no ring ratio")
+    if apsk:
+        ring_ratio = _ring_ratios(modulation, ring_ratio)
+        points, norm = builder(modulation, ring_ratio)
+    else:
+        points, norm = builder(modulation) if builder else _generic(name, modulation)
     points = np.asarray(points, dtype=np.complex128)
     points.setflags(write=False)
     return Convention(name=name, modulation=modulation, points=points, normalisation=norm,
-                      is_gray=_is_gray(points), source=source)
+                      is_gray=_is_gray(points), source=source,
+                      rule=_RULES.get(modulation, PLAIN), ring_ratio=ring_ratio)
 
 
-def conventions_for(modulation: str) -> list[Convention]:
+def _ring_ratios(modulation: str, given) -> tuple[float, ...]:
+    want = len(RING_RATIOS[modulation][_DEFAULT_RATE[modulation]])
+    if given is None:
+        return RING_RATIOS[modulation][_DEFAULT_RATE[modulation]]
+    r = tuple(float(x) for x in (given if isinstance(given, (list, tuple)) else [given]))
+    if len(r) != want:
+        raise ConfigError(f"ring ratio {list(r)}: {modulation} has {want} ring ratio"
+                          f"{'s' if want > 1 else ''} (each ring's radius over the inner one's)")
+    if not all(x > 1 for x in r) or list(r) != sorted(r):
+        raise ConfigError(f"ring ratio {list(r)}: expected increasing numbers above 1")
+    return r
+
+
+def conventions_for(modulation: str, ring_ratio: float | None = None) -> list[Convention]:
     """Every convention that defines ``modulation``, in preference order."""
-    return [get_convention(n, modulation) for n in CONVENTION_ORDER
+    return [get_convention(n, modulation, ring_ratio) for n in CONVENTION_ORDER
             if modulation in _BUILDERS[n][0]]

@@ -13,6 +13,7 @@ import numpy as np
 from ..dsp.pulses import PulseShape
 from .conventions import Convention
 from .labels import labels_to_bits
+from .rules import apply_rule, undo_rule
 
 __all__ = ["ReferenceModem"]
 
@@ -47,10 +48,17 @@ class ReferenceModem:
         self._slicer = _make_slicer(self.points)
         self._axes = _separable_axes(self.points, self.k)
         self._pair = _one_bit_axes(self._axes)
+        #: the convention's symbol rule (position, previous symbol); blocks start at position 0
+        self.rule = convention.rule
 
     # -- transmit ---------------------------------------------------------------------------
     def map_symbols(self, bits: np.ndarray) -> np.ndarray:
-        """The symbols (one per label) for ``bits``."""
+        """The symbols (one per label) for ``bits``, under the convention's symbol rule."""
+        if not self.rule.plain:
+            return apply_rule(self._map_points(bits), self.rule)
+        return self._map_points(bits)
+
+    def _map_points(self, bits: np.ndarray) -> np.ndarray:
         bits = np.asarray(bits, dtype=np.uint8)
         if self._pair is not None:  # I from the first bit, Q from the second: pure arithmetic
             low, span, _, _ = self._pair
@@ -90,13 +98,17 @@ class ReferenceModem:
         return self.pulse.matched_filter(samples, n_symbols)
 
     def decide_labels(self, symbols: np.ndarray) -> np.ndarray:
-        return self._slicer(np.asarray(symbols, dtype=np.complex128))
+        """The label of each symbol of a block (its symbol rule undone first)."""
+        return self._slicer(undo_rule(symbols, self.rule))
 
     def demodulate(self, samples: np.ndarray, n_symbols: int | None = None) -> np.ndarray:
         return self.slice_bits(self.symbols(samples, n_symbols))
 
     def slice_bits(self, y: np.ndarray) -> np.ndarray:
-        """Hard decisions on symbols, as bits."""
+        """Hard decisions on a block of symbols, as bits (a differential rule: differential
+        detection, each symbol against the one before)."""
+        if not self.rule.plain:
+            y = undo_rule(y, self.rule)
         if self._pair is not None:
             _, _, threshold, upper_is_one = self._pair
             flat = np.ascontiguousarray(y, dtype=np.complex128).view(np.float64)
@@ -111,7 +123,7 @@ class ReferenceModem:
             return out.reshape(-1)
         if self._axes is not None:
             return _axes_demodulate(self._axes, np.asarray(y, dtype=np.complex128), self.k)
-        return self._label_bits[self.decide_labels(y)].reshape(-1)
+        return self._label_bits[self._slicer(np.asarray(y, dtype=np.complex128))].reshape(-1)
 
     def demodulate_soft(self, samples: np.ndarray, noise_var: float, *,
                         max_log: bool = False, n_symbols: int | None = None) -> np.ndarray:
@@ -122,7 +134,7 @@ class ReferenceModem:
         memory). ``noise_var`` is the complex noise variance per sample of ``samples``; the
         unit-energy matched filter passes it unchanged to the symbol.
         """
-        y = self.symbols(samples, n_symbols)
+        y = undo_rule(self.symbols(samples, n_symbols), self.rule)
         out = np.empty((y.size, self.k))
         chunk = max(1, (1 << 22) // len(self.points))
         for s in range(0, y.size, chunk):
@@ -206,9 +218,10 @@ def _labels_u8(bits: np.ndarray, k: int) -> np.ndarray:
     cols = np.asarray(bits, dtype=np.uint8).reshape(-1, k)
     if k == 1:
         return cols[:, 0]
-    idx = cols[:, 0] << np.uint8(k - 1)
+    t = np.uint8 if k <= 8 else np.uint16  # 1024QAM labels need 10 bits
+    idx = cols[:, 0].astype(t) << t(k - 1)
     for i in range(1, k):
-        idx |= cols[:, i] << np.uint8(k - 1 - i)
+        idx |= cols[:, i].astype(t) << t(k - 1 - i)
     return idx
 
 class _Axis:

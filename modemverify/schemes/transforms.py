@@ -274,13 +274,60 @@ def describe_reassignment(assignment: tuple[int, ...], k: int) -> str:
 
 __all__ = [
     "Relation", "relate", "candidate_relations", "differing_labels", "identity_assignment",
-    "describe_reassignment", "DEFAULT_TOLERANCE", "explain_difference",
+    "describe_reassignment", "DEFAULT_TOLERANCE", "explain_difference", "explain_rings",
+    "explain_rule",
 ]
+
+
+def explain_rings(reference: np.ndarray, device: np.ndarray,
+                  tolerance: float = DEFAULT_TOLERANCE) -> str | None:
+    """For a constellation on several rings (APSK): "ring ratio 2.85 instead of 3.15" when the
+    device's points sit at the reference's angles and differ only in their ring radii; else
+    None. Ratios are of each ring to the innermost."""
+    ref = np.asarray(reference, dtype=np.complex128)
+    dev = np.asarray(device, dtype=np.complex128)
+    if ref.shape != dev.shape or not np.all(np.isfinite(dev)):
+        return None
+    radii = np.abs(ref)
+    rings = np.unique(np.round(radii / radii.max(), 6))
+    if len(rings) < 2:
+        return None
+    ring_of = np.searchsorted(rings, np.round(radii / radii.max(), 6))
+    dev_r = np.array([np.mean(np.abs(dev[ring_of == i])) for i in range(len(rings))])
+    if not np.all(dev_r > 0):
+        return None
+    # the device with each ring moved to the reference's radius must be the reference
+    g = dev_r[0] / (rings[0] * radii.max())
+    fixed = dev * (rings[ring_of] * radii.max() / dev_r[ring_of]) * g
+    if np.max(np.abs(fixed - g * ref)) > tolerance * g * minimum_distance(ref):
+        return None
+    ref_ratio, dev_ratio = rings[1:] / rings[0], dev_r[1:] / dev_r[0]
+    if np.allclose(ref_ratio, dev_ratio, rtol=1e-3):
+        return None
+    return "; ".join(f"ring ratio {d:.2f} instead of {r:.2f}"
+                     + (f" (ring {i + 2} to ring 1)" if len(rings) > 2 else "")
+                     for i, (d, r) in enumerate(zip(dev_ratio, ref_ratio)))
+
+
+def explain_rule(found: str, claimed_rule, *, name: str) -> str:
+    """The reason when the device follows another symbol rule than the claimed one: ``found``
+    says how (from :func:`~modemverify.schemes.rules.rule_family`)."""
+    return (f"{found} (claimed, by the {name} convention: {claimed_rule.describe()}); read "
+            f"that way, the device's table is the {name} table")
+
+
+def _reversed_increments(rels: list[Relation]) -> Relation | None:
+    for r in rels:
+        if (r.conjugate and r.rotation_deg == 0 and r.mask == 0 and r.permutation is not None
+                and tuple(r.permutation) == tuple(range(len(r.permutation)))):
+            return r
+    return None
 
 
 def explain_difference(reference: np.ndarray, device: np.ndarray, bad: list[int], gain: float,
                        k: int, tolerance: float = DEFAULT_TOLERANCE, *, name: str,
-                       subject: str = "device table") -> tuple[str, list[Relation]]:
+                       subject: str = "device table",
+                       differential: bool = False) -> tuple[str, list[Relation]]:
     """Why ``device`` is not ``reference`` (``bad`` from :func:`differing_labels`): one line
     naming the simplest transform and its equivalents, the labels that trade places, or the
     points that are not on the constellation; with the relations found.
@@ -290,6 +337,18 @@ def explain_difference(reference: np.ndarray, device: np.ndarray, bad: list[int]
     """
     n = len(device)
     rels = relate(reference, device, tolerance)
+    if differential:
+        # the table is of phase changes: a conjugated table is a phase that turns the other way
+        subject = "device's phase-change table"
+        rev = _reversed_increments(rels)
+        if rev is not None:
+            also = [r.describe() for r in rels if r is not rev]
+            return ("phase increments reversed: each label turns the phase the other way "
+                    f"(the {name} phase-change table conjugated"
+                    + (f"; the same as: {'; '.join(also)}" if also else "") + ")"), rels
+    rings = explain_rings(reference, device, tolerance)
+    if rings is not None:
+        return f"{subject}: {rings} (the points are at the {name} angles)", rels
     if rels and rels[0].permutation is not None and rels[0].cost > 0:
         also = [r.describe() for r in rels[1:]]
         return (f"{subject} is the {name} table with {rels[0].describe()}"

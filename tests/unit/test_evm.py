@@ -109,7 +109,9 @@ def test_evm_matches_one_over_root_snr_for_16qam_in_awgn(snr_db, expected):
 @pytest.mark.parametrize("modulation, limit, snr_db", [("qpsk", 17.5, 15.14),
                                                        ("16qam", 12.5, 18.06),
                                                        ("64qam", 8.0, 21.94),
-                                                       ("256qam", 3.5, 29.12)])
+                                                       ("256qam", 3.5, 29.12),
+                                                       # Release 17 row, from memory
+                                                       ("1024qam", 2.5, 32.04)])
 def test_limits_and_their_snr(modulation, limit, snr_db):
     # 3GPP TS 38.104, 6.5.2.2, Table 6.5.2.2-1 (NR BS EVM limits); the SNR each limit
     # corresponds to by EVM = 1/sqrt(SNR) (Shafik et al., ICECE 2006) is -20 log10(EVM),
