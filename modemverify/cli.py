@@ -23,12 +23,8 @@ from .plan import plan, render_plan
 from .report.outputs import OutputLock, check_output_file, check_output_folder
 from .runner import DEFAULT_SEED
 from .schemes.conventions import CONVENTIONS, MODULATIONS
-<<<<<<< HEAD
-from .schemes.theory import THEORY_MODULATIONS, ber, ebn0_for_ber, ser
-from .selftest import DEFAULT_MODULATIONS, DEFAULT_SEEDS, certify
-=======
 from .schemes.theory import THEORY_MODULATIONS, ber, detection, ebn0_for_ber, ser
->>>>>>> schemes
+from .selftest import DEFAULT_MODULATIONS, DEFAULT_SEEDS, certify
 from .session import (
     EXIT_FAIL,
     EXIT_INTERRUPTED,
