@@ -73,9 +73,10 @@ class DaskCluster(Engine):
             self.description = f"the Dask cluster at {address} ({self.workers} threads)"
         if upload:
             self._upload(bench)
-        self._spec = bench.spec
-        self._state = bench_state(bench)
         self._key = spec_key(bench.spec)
+        # sent to every worker once, not with every block
+        self._spec, self._state = self._client.scatter([bench.spec, bench_state(bench)],
+                                                       broadcast=True)
 
     def _upload(self, bench: Bench) -> None:
         target = bench.spec.target or ""
@@ -89,7 +90,7 @@ class DaskCluster(Engine):
         exhausted = False
         try:
             while True:
-                while not exhausted and len(ahead) < 2 * self.workers:
+                while not exhausted and len(ahead) < 3 * self.workers:
                     job = next(jobs, None)
                     if job is None:
                         exhausted = True
