@@ -1,3 +1,3 @@
 """The modemverify version, in a module of its own so that every layer may read it."""
 
-__version__ = "0.1.0"
+__version__ = "0.2.0"
