@@ -238,8 +238,8 @@ def cmd_check(args) -> int:
         if name not in ORACLES:
             raise UnknownNameError("check", name, ORACLES, key="--only")
     if args.cluster is not None and not dask_available():
-        raise ConfigError(f"--cluster {args.cluster}: a Dask cluster needs the optional "
-                          f"extra: {INSTALL_HINT}", key="--cluster")
+        raise ConfigError(f"a Dask cluster ({args.cluster}) needs the optional extra: "
+                          f"{INSTALL_HINT}", key="--cluster")
     if args.campaign:
         check_output_file(args.campaign, "--campaign")
     with _outputs(args):  # the files are loaded inside, under the signal handler
