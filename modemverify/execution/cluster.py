@@ -18,13 +18,12 @@ verdicts are the same, field by field, as with one worker.
 
 from __future__ import annotations
 
-from collections import deque
 
 from ..bench import Bench
 from ..blocks import Engine, bench_state
 from ..errors import AdapterError, ConfigError
 from . import worker
-from .pool import spec_key
+from .pool import RunAhead, spec_key
 
 __all__ = ["INSTALL_HINT", "DaskCluster", "dask_available"]
 
@@ -85,33 +84,20 @@ class DaskCluster(Engine):
             self._client.upload_file(str(bench.spec.resolve(path)))
 
     def results(self, jobs):
-        ahead: deque = deque()
-        jobs = iter(jobs)
-        exhausted = False
+        ahead = RunAhead(jobs, lambda job: self._client.submit(
+            worker.compute, self._key, self._spec, self._state, job, pure=False,
+            key=f"modemverify-{job.point}-{job.index}-{id(self)}"), 3 * self.workers)
         try:
-            while True:
-                while not exhausted and len(ahead) < 3 * self.workers:
-                    job = next(jobs, None)
-                    if job is None:
-                        exhausted = True
-                        break
-                    ahead.append((job, self._client.submit(
-                        worker.compute, self._key, self._spec, self._state, job, pure=False,
-                        key=f"modemverify-{job.point}-{job.index}-{id(self)}")))
-                if not ahead:
-                    return
-                job, future = ahead.popleft()
+            for job, future in ahead:
                 try:
                     out = future.result()
                 except Exception as exc:  # noqa: BLE001 -- a lost worker, a killed task
                     raise AdapterError(f"the Dask cluster lost block {job.index} of "
                                        f"{job.point}: {type(exc).__name__}: {exc}") from None
-                if isinstance(out, worker.Failure):
-                    raise out.error(f"a Dask worker (block {job.index} of {job.point})")
-                yield out
+                yield worker.unwrap(out, f"a Dask worker (block {job.index} of {job.point})")
         finally:
-            if ahead:  # Dask cancels running and pending tasks alike
-                self._client.cancel([f for _, f in ahead])
+            if ahead.pending:  # Dask cancels running and pending tasks alike
+                self._client.cancel([f for _, f in ahead.pending])
 
     def close(self) -> None:
         client, self._client = getattr(self, "_client", None), None

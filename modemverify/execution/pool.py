@@ -23,7 +23,7 @@ from ..blocks import Engine, bench_state
 from ..errors import AdapterError
 from . import worker
 
-__all__ = ["WorkerPool", "available_cores", "spec_key"]
+__all__ = ["RunAhead", "WorkerPool", "available_cores", "spec_key"]
 
 
 def available_cores() -> int:
@@ -42,6 +42,31 @@ def spec_key(spec) -> str:
 def _context():
     methods = multiprocessing.get_all_start_methods()
     return multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
+
+
+class RunAhead:
+    """Jobs submitted up to ``window`` ahead of the one handed back, in job order.
+
+    Iterating gives ``(job, handle)`` as ``submit(job)`` returned it; :attr:`pending` holds the
+    submitted jobs not handed back yet (to cancel when the consumer stops).
+    """
+
+    def __init__(self, jobs, submit, window: int):
+        self._jobs = iter(jobs)
+        self._submit = submit
+        self._window = max(1, int(window))
+        self.pending: deque = deque()
+
+    def __iter__(self):
+        while True:
+            while len(self.pending) < self._window:
+                job = next(self._jobs, None)
+                if job is None:
+                    break
+                self.pending.append((job, self._submit(job)))
+            if not self.pending:
+                return
+            yield self.pending.popleft()
 
 
 class WorkerPool(Engine):
@@ -63,21 +88,10 @@ class WorkerPool(Engine):
 
     def results(self, jobs):
         pool = self._executor()
-        ahead: deque = deque()
-        jobs = iter(jobs)
-        exhausted = False
+        ahead = RunAhead(jobs, lambda job: pool.submit(worker.compute, self._key, self._spec,
+                                                       self._state, job), 2 * self.workers)
         try:
-            while True:
-                while not exhausted and len(ahead) < 2 * self.workers:
-                    job = next(jobs, None)
-                    if job is None:
-                        exhausted = True
-                        break
-                    ahead.append((job, pool.submit(worker.compute, self._key, self._spec,
-                                                   self._state, job)))
-                if not ahead:
-                    return
-                job, future = ahead.popleft()
+            for job, future in ahead:
                 try:
                     out = future.result()
                 except BrokenProcessPool as exc:
@@ -85,15 +99,13 @@ class WorkerPool(Engine):
                     raise AdapterError(f"a worker process died while computing block "
                                        f"{job.index} of {job.point} ({exc}); the blocks "
                                        f"before it are kept") from None
-                if isinstance(out, worker.Failure):
-                    raise out.error(f"a worker (block {job.index} of {job.point})")
-                yield out
+                yield worker.unwrap(out, f"a worker (block {job.index} of {job.point})")
         except GeneratorExit:  # decided: drop the blocks ahead; those running are discarded
-            for _, future in ahead:
+            for _, future in ahead.pending:
                 future.cancel()
             raise
         except BaseException:  # an interrupt or a failure: stop the workers now
-            for _, future in ahead:
+            for _, future in ahead.pending:
                 future.cancel()
             self._stop()
             raise

@@ -21,7 +21,7 @@ from ..blocks import BlockJob, BlockResult, apply_bench_state, run_block
 from ..errors import AdapterError, ModemVerifyError
 from ..spec import DeviceSpec
 
-__all__ = ["Failure", "ignore_interrupts", "compute", "close_all"]
+__all__ = ["Failure", "ignore_interrupts", "compute", "unwrap", "close_all"]
 
 
 @dataclass(frozen=True)
@@ -75,6 +75,14 @@ def compute(key: str, spec: DeviceSpec, state: dict, job: BlockJob) -> BlockResu
     except Exception as exc:  # noqa: BLE001 -- a harness bug in a worker: say so
         return Failure(f"internal error in worker {os.getpid()}: {type(exc).__name__}: {exc}"
                        f"\n{traceback.format_exc(limit=4)}")
+
+
+def unwrap(out: BlockResult | Failure, where: str) -> BlockResult:
+    """A worker's answer as a result, or the AdapterError of its failure (``where``: which
+    worker and block, for the message)."""
+    if isinstance(out, Failure):
+        raise out.error(where)
+    return out
 
 
 def close_all() -> None:
