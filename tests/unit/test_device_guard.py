@@ -154,17 +154,27 @@ def test_a_keyboardinterrupt_the_device_raises_itself_is_an_error_verdict(tmp_pa
 
 
 def test_a_real_interrupt_during_a_call_still_stops_the_run(tmp_path):
-    # the device sends the harness SIGINT, as Ctrl-C would: the guard lets it through
-    holders = _INTERRUPTS.holders
-    device = guarded(device_file(tmp_path, "sigint"))
+    # the device sends the harness SIGINT, as Ctrl-C would: the guard lets it through. A
+    # suite started in the background by a non-interactive shell inherits SIGINT ignored
+    # (POSIX job control), where no Ctrl-C can reach it: the test then gives the process
+    # Python's own handler for its duration
+    inherited = signal.getsignal(signal.SIGINT)
+    if inherited is signal.SIG_IGN:
+        signal.signal(signal.SIGINT, signal.default_int_handler)
     try:
-        with pytest.raises(KeyboardInterrupt):
-            device.modulate(np.zeros(8, np.uint8))
+        holders = _INTERRUPTS.holders
+        device = guarded(device_file(tmp_path, "sigint"))
+        try:
+            with pytest.raises(KeyboardInterrupt):
+                device.modulate(np.zeros(8, np.uint8))
+        finally:
+            device.close()
+        assert _INTERRUPTS.holders == holders  # released: the last holder puts them back
+        if holders == 0:
+            assert signal.getsignal(signal.SIGINT) is signal.default_int_handler
     finally:
-        device.close()
-    assert _INTERRUPTS.holders == holders  # released: the last holder puts the handlers back
-    if holders == 0:
-        assert signal.getsignal(signal.SIGINT) is signal.default_int_handler
+        if inherited is signal.SIG_IGN:
+            signal.signal(signal.SIGINT, signal.SIG_IGN)
 
 
 def test_exits_in_the_cli_give_exit_1_and_a_junit_file_naming_every_device(tmp_path):
