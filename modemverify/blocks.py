@@ -169,6 +169,9 @@ class Engine:
     def results(self, jobs: Iterator[BlockJob]) -> Iterator[BlockResult]:
         raise NotImplementedError
 
+    def warm(self) -> None:
+        """Start the workers and open their devices ahead of the first block (no wait)."""
+
     def close(self) -> None:
         """Stop the engine's workers (idempotent)."""
 

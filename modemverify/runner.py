@@ -271,11 +271,17 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
                         f"the device could not be opened: {exc}", seed))
         return RunResult(Subject.of(spec), verdicts, seed, time.perf_counter() - t0,
                          only=tuple(only or ()))
+    table = {**ORACLES, **oracles} if oracles else ORACLES
+    todo = [(name, oracle, spec.checks[name]) for name, oracle in table.items()
+            if spec.checks.get(name) is not None and (not only or name in only)]
     try:
-        for name, oracle in ({**ORACLES, **oracles} if oracles else ORACLES).items():
-            opts = spec.checks.get(name)
-            if opts is None or (only and name not in only):
-                continue
+        if execution is not None and any(o.parallel for _, o, _ in todo):
+            # start the workers now: they import and open the device while the checks
+            # before the BER check run here
+            _start_engine(bench, execution, adapter, warned)
+            if bench.engine is not None:
+                bench.engine.warm()
+        for name, oracle, opts in todo:
             bench.progress(name, 0.0, "running")
             if oracle.parallel and execution is not None:
                 _start_engine(bench, execution, adapter, warned)

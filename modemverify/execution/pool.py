@@ -86,6 +86,11 @@ class WorkerPool(Engine):
                                              initializer=worker.ignore_interrupts)
         return self._pool
 
+    def warm(self) -> None:
+        pool = self._executor()
+        for _ in range(self.workers):
+            pool.submit(worker.warm, self._key, self._spec, self._state)
+
     def results(self, jobs):
         pool = self._executor()
         ahead = RunAhead(jobs, lambda job: pool.submit(worker.compute, self._key, self._spec,

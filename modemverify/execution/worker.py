@@ -21,7 +21,7 @@ from ..blocks import BlockJob, BlockResult, apply_bench_state, run_block
 from ..errors import AdapterError, ModemVerifyError
 from ..spec import DeviceSpec
 
-__all__ = ["Failure", "ignore_interrupts", "compute", "unwrap", "close_all"]
+__all__ = ["Failure", "ignore_interrupts", "compute", "warm", "unwrap", "close_all"]
 
 
 @dataclass(frozen=True)
@@ -75,6 +75,15 @@ def compute(key: str, spec: DeviceSpec, state: dict, job: BlockJob) -> BlockResu
     except Exception as exc:  # noqa: BLE001 -- a harness bug in a worker: say so
         return Failure(f"internal error in worker {os.getpid()}: {type(exc).__name__}: {exc}"
                        f"\n{traceback.format_exc(limit=4)}")
+
+
+def warm(key: str, spec: DeviceSpec, state: dict) -> None:
+    """Open this process's bench for ``spec`` ahead of its first block; a failure is left to
+    that block to report."""
+    try:
+        _bench(key, spec, state)
+    except Exception:  # noqa: BLE001 -- reported by the first block's compute
+        pass
 
 
 def unwrap(out: BlockResult | Failure, where: str) -> BlockResult:
