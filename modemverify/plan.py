@@ -97,7 +97,7 @@ def _duration(seconds: float) -> str:
     if not math.isfinite(seconds):
         return "-"
     if seconds < 1:
-        return f"{seconds * 1e3:.2g} ms"
+        return f"{seconds * 1e3:.3g} ms"
     if seconds < 120:
         return f"{seconds:.3g} s"
     if seconds < 7200:
