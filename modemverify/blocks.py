@@ -26,10 +26,9 @@ resume; the default keeps nothing (:mod:`modemverify.execution.campaign` has the
 from __future__ import annotations
 
 import base64
-import time
 import zlib
-from dataclasses import dataclass, field
-from typing import Any, Iterator
+from dataclasses import dataclass
+from typing import Iterator
 
 import numpy as np
 
@@ -101,12 +100,11 @@ class BlockJob:
 
 @dataclass(frozen=True)
 class BlockResult:
-    """The bit errors of one block (positions within it, increasing) and what it cost."""
+    """The bit errors of one block (positions within it, increasing)."""
 
     index: int
     bits: int
     errors: np.ndarray
-    seconds: float = 0.0
 
 
 _BUFFER = "blocks.buffer"
@@ -132,7 +130,6 @@ def run_block(bench: Bench, job: BlockJob) -> BlockResult:
     Draws, in this order, from the block's own stream: the bits, the impairments' randomness,
     the noise. Raises what the device raises (AdapterError through the guard).
     """
-    t0 = time.perf_counter()
     rng = job.rng()
     k, sps = bench.k, bench.sps
     bits = random_bits(rng, job.bits)
@@ -151,7 +148,7 @@ def run_block(bench: Bench, job: BlockJob) -> BlockResult:
         buf = bench.cache[_BUFFER] = np.empty(tx.size, dtype=np.complex128)
     rx = bench.receive(awgn.apply(tx, rng, out=buf), job.bits // k)
     errors = np.flatnonzero(rx != bits)
-    return BlockResult(job.index, job.bits, errors, time.perf_counter() - t0)
+    return BlockResult(job.index, job.bits, errors)
 
 
 class Engine:
@@ -164,7 +161,6 @@ class Engine:
     """
 
     workers: int = 1
-    description: str = "in process"
 
     def results(self, jobs: Iterator[BlockJob]) -> Iterator[BlockResult]:
         raise NotImplementedError
@@ -192,22 +188,18 @@ class Unavailable(Engine):
     """The engine asked for could not start: every block raises AdapterError with why."""
 
     reason: str
-    description: str = "unavailable"
 
     def results(self, jobs):
         raise AdapterError(self.reason)
         yield  # a generator, like every engine's results
 
 
-@dataclass
 class Journal:
     """Where a campaign keeps each point's state; this one keeps nothing.
 
     ``load(device, point)`` returns what was saved (``{"state": ...}`` for a point in progress,
     ``{"verdict": ...}`` for a decided one) or None; ``save`` and ``decided`` record them.
     """
-
-    saved: dict[str, Any] = field(default_factory=dict)
 
     def load(self, device: str, point: str) -> dict | None:
         return None

@@ -16,7 +16,6 @@ from dataclasses import dataclass
 
 from ..bench import Bench
 from ..blocks import Engine
-from ..errors import ConfigError
 from .campaign import CAMPAIGN_FILE, CampaignFile
 from .cluster import INSTALL_HINT, DaskCluster, dask_available
 from .pool import WorkerPool, available_cores
@@ -61,10 +60,7 @@ class Execution:
 
     def engine(self, bench: Bench) -> Engine | None:
         """The engine for ``bench``'s BER blocks; None for the bench itself, in process."""
-        if self.cluster is not None:
-            if not dask_available():
-                raise ConfigError(f"--cluster {self.cluster}: a Dask cluster needs the "
-                                  f"optional extra: {INSTALL_HINT}", key="execution.cluster")
+        if self.cluster is not None:  # says how to install Dask when it is missing
             return DaskCluster(bench, self.cluster, workers=self.workers, upload=self.upload)
         if self.workers > 1:
             return WorkerPool(bench, self.workers)

@@ -60,7 +60,6 @@ class DaskCluster(Engine):
                 dashboard_address=None, silence_logs=40)
             self._client = distributed.Client(self._local)
             self.workers = int(workers)
-            self.description = f"a Dask LocalCluster of {self.workers} worker processes"
         else:
             try:
                 self._client = distributed.Client(address, timeout=30)
@@ -69,7 +68,6 @@ class DaskCluster(Engine):
                                   key="execution.cluster") from None
             self.workers = max(1, sum(w.get("nthreads", 1) for w in
                                       self._client.scheduler_info()["workers"].values()))
-            self.description = f"the Dask cluster at {address} ({self.workers} threads)"
         if upload:
             self._upload(bench)
         self._key = spec_key(bench.spec)

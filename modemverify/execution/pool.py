@@ -74,7 +74,6 @@ class WorkerPool(Engine):
 
     def __init__(self, bench: Bench, workers: int):
         self.workers = int(workers)
-        self.description = f"{self.workers} local worker processes"
         self._spec = bench.spec
         self._state = bench_state(bench)
         self._key = spec_key(bench.spec)

@@ -197,7 +197,7 @@ class BerOracle(Oracle):
         for plan in plans:
             if plan.warning:
                 bench.warn(f"warning: {self.point_name(plan.ebn0_db)}: {plan.warning}")
-        clock = _Budget(bench, [self.point_name(p.ebn0_db) for p in plans], plans)
+        clock = _Budget(bench, plans)
         engine = bench.engine if bench.engine is not None else InProcess(bench)
         journal = bench.journal if bench.journal is not None else Journal()
         for ebn0 in points:  # each point as soon as it is decided
@@ -283,7 +283,7 @@ class BerOracle(Oracle):
                         "bursty": bursty, "sub_counts": pack_counts(sub_counts[0])})
                 bench.progress(name, bits_sent / max_bits,
                                f"{bits_sent:.3g} bits, {errors} errors")
-                clock.measured(name, bits_sent, res)
+                clock.measured(bits_sent)
                 if decided is not None:
                     break
         finally:
@@ -428,20 +428,19 @@ def plan_point(modulation: str, ebn0: float, opts, risk: float, k: int = 1) -> P
 class _Budget:
     """Warns once, after the first block, when the check will likely outlast its time budget."""
 
-    def __init__(self, bench: Bench, names: list[str], plans: list[PointPlan]):
+    def __init__(self, bench: Bench, plans: list[PointPlan]):
         self.bench = bench
         self.budget = bench.time_budget_s
-        self.expected = dict(zip(names, (p.expected_bits for p in plans)))  # NaN: no judging
+        self.total = sum(b for p in plans if (b := p.expected_bits) == b)  # NaN: not judged
         self.t0 = time.perf_counter()
         self.warned = self.budget is None
 
-    def measured(self, name: str, bits_sent: int, result) -> None:
+    def measured(self, bits_sent: int) -> None:
         if self.warned:
             return
         self.warned = True
         rate = bits_sent / max(time.perf_counter() - self.t0, 1e-9)
-        total = sum(b for b in self.expected.values() if b == b)
-        need = total / rate
+        need = self.total / rate
         if need > self.budget:
             self.bench.warn(f"warning: {self.bench.spec.name}: at the measured {rate:.3g} bit/s the BER "
                             f"check needs about {need:.3g} s on average, more than the time "
