@@ -34,12 +34,16 @@ import numpy as np
 
 from .bench import Bench
 from .errors import AdapterError
+from .schemes.labels import bits_to_labels
+from .stats.weighted import WeightedTally
+from .vectors.biasing import KIND_TRUE, NoiseMixture
 from .vectors.bits import random_bits
 from .vectors.channels import Awgn, channel_from_config
 
 __all__ = [
     "BlockJob", "BlockResult", "block_seed", "block_schedule", "run_block", "Engine",
-    "InProcess", "Unavailable", "Journal", "bench_state", "apply_bench_state", "pack_counts", "unpack_counts",
+    "InProcess", "Unavailable", "Journal", "bench_state", "apply_bench_state", "pack_counts",
+    "unpack_counts",
 ]
 
 
@@ -93,6 +97,9 @@ class BlockJob:
     energy: str = "nominal"
     impairments: tuple = ()
     precision: str = "float64"
+    #: ``plain`` (the true noise) or ``importance`` (biased noise and weights,
+    #: :mod:`modemverify.vectors.biasing`)
+    method: str = "plain"
 
     def rng(self) -> np.random.Generator:
         return np.random.default_rng(block_seed(self.seed, self.check, self.point, self.index))
@@ -100,14 +107,20 @@ class BlockJob:
 
 @dataclass(frozen=True)
 class BlockResult:
-    """The bit errors of one block (positions within it, increasing)."""
+    """The bit errors of one block (positions within it, increasing); with importance
+    sampling also the weighted errors' tally."""
 
     index: int
     bits: int
     errors: np.ndarray
+    tally: WeightedTally | None = None
+    #: importance sampling, first block of a point: whether the demodulator gave the same bits
+    #: when given the same samples twice (None where not tried)
+    repeatable: bool | None = None
 
 
 _BUFFER = "blocks.buffer"
+_MIXTURE = "blocks.mixture"
 
 
 def pack_counts(counts: np.ndarray) -> str:
@@ -128,7 +141,8 @@ def run_block(bench: Bench, job: BlockJob) -> BlockResult:
     """Send one block through the bench's modulator, the channel and its demodulator.
 
     Draws, in this order, from the block's own stream: the bits, the impairments' randomness,
-    the noise. Raises what the device raises (AdapterError through the guard).
+    the noise (for importance sampling: each symbol's mixture component, then the normals).
+    Raises what the device raises (AdapterError through the guard).
     """
     rng = job.rng()
     k, sps = bench.k, bench.sps
@@ -146,9 +160,41 @@ def run_block(bench: Bench, job: BlockJob) -> BlockResult:
     buf = bench.cache.get(_BUFFER)
     if buf is None or buf.size != tx.size:
         buf = bench.cache[_BUFFER] = np.empty(tx.size, dtype=np.complex128)
+    if job.method == "importance":
+        return _importance_block(bench, job, rng, bits, tx, awgn, buf)
     rx = bench.receive(awgn.apply(tx, rng, out=buf), job.bits // k)
     errors = np.flatnonzero(rx != bits)
     return BlockResult(job.index, job.bits, errors)
+
+
+def _importance_block(bench: Bench, job: BlockJob, rng, bits, tx, awgn: Awgn, buf):
+    """A block with the noise drawn from the biasing mixture of the claimed constellation, at
+    one sample per symbol (the BER check refuses importance sampling elsewhere)."""
+    k = bench.k
+    mixture = bench.cache.get(_MIXTURE)
+    if mixture is None:
+        mixture = bench.cache[_MIXTURE] = NoiseMixture(bench.convention.points,
+                                                       bench.convention.rule)
+    labels = bits_to_labels(bits, k)
+    if tx.size != labels.size:
+        raise AdapterError(f"importance sampling needs one sample per symbol; the modulator "
+                           f"gave {tx.size} samples for {labels.size} symbols", call="modulate")
+    drawn = mixture.draw(labels, awgn.noise_variance(tx), rng)
+    np.add(tx, drawn.noise, out=buf)
+    repeatable = None
+    if job.index == 0:
+        # the weights account for the harness's noise only: a demodulator that draws noise of
+        # its own (or keeps state between calls) is not a function of the samples it is given
+        again = buf.copy()
+        rx = bench.receive(buf, labels.size)
+        repeatable = bool(np.array_equal(bench.receive(again, labels.size), rx))
+    else:
+        rx = bench.receive(buf, labels.size)
+    wrong = rx != bits
+    per_symbol = wrong.reshape(-1, k).sum(axis=1)
+    x = drawn.weights * per_symbol / k
+    return BlockResult(job.index, job.bits, np.flatnonzero(wrong),
+                       WeightedTally.of(x, drawn.kind == KIND_TRUE), repeatable)
 
 
 class Engine:

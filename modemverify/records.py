@@ -16,7 +16,8 @@ except ImportError:  # pragma: no cover - Python 3.10
     from typing_extensions import NotRequired
 
 __all__ = [
-    "MappingRecord", "EyeRecord", "EvmRecord", "BerPointRecord", "MaskRecord",
+    "MappingRecord", "EyeRecord", "EvmRecord", "BerPointRecord", "ImportanceGuardRecord",
+    "MaskRecord",
     "SpectrumRecord", "CompareEvmRecord", "CompareSpectrumRecord", "SoftOutputRecord",
 ]
 
@@ -84,6 +85,35 @@ class BerPointRecord(TypedDict):
     noise: str
     #: blocks of the schedule used (blocks.block_schedule)
     blocks: int
+    #: method: importance only: the weighted errors' effective sample size, the largest
+    #: weight's share of the estimate, the device calls (modulate + demodulate pairs), and
+    #: the bits plain sampling would need for the same interval width and how many times more
+    #: that is than the bits sent
+    ess: NotRequired[float]
+    max_weight_share: NotRequired[float]
+    device_calls: NotRequired[int]
+    plain_bits_same_width: NotRequired[float]
+    speedup: NotRequired[float]
+
+
+class ImportanceGuardRecord(TypedDict):
+    """``ber.importance_guard``: importance against plain sampling where plain is affordable."""
+
+    ebn0_db: float
+    theory_ber: float
+    plain_ber: float
+    plain_interval: tuple[float, float]
+    plain_bits: int
+    importance_ber: float
+    importance_interval: tuple[float, float]
+    importance_bits: int
+    ess: float
+    max_share: float
+    #: the agreement test: z of the difference and its two-sided p-value
+    z: float
+    p_value: float
+    #: why importance sampling is not trusted for this device, or ""
+    why: str
 
 
 class MaskRecord(TypedDict):

@@ -44,7 +44,8 @@ from ..bench import Bench
 from ..blocks import BlockJob, InProcess, Journal, block_schedule, pack_counts, unpack_counts
 from ..errors import ConfigError
 from ..options import Opt
-from ..records import BerPointRecord
+from ..records import BerPointRecord, ImportanceGuardRecord
+from ..schemes.conventions import conventions_for
 from ..schemes.theory import THEORY_MODULATIONS, default_ebn0_points
 from ..schemes.theory import ber as theory_ber
 from ..stats import (
@@ -55,14 +56,17 @@ from ..stats import (
     expected_sample_size,
     fixed_sample_size,
     implementation_loss_db,
+    weighted_interval,
 )
 from ..vectors.channels import FLOAT32_NOISE_MIN_BER, NOISE_PRECISIONS, channel_from_config
 from ..verdict import Verdict
+from ._importance import run_guard, run_weighted
 from .base import Oracle
 
 __all__ = [
     "MIN_SUB_BLOCK", "FIRST_BLOCK", "MIN_BURST_BLOCKS", "BETTER_THAN_THEORY_DB", "BerOracle",
-    "ORACLE", "BlockSizes", "block_sizes", "noise_precision", "PointPlan", "plan_point", "computed_bits",
+    "ORACLE", "BlockSizes", "block_sizes", "importance_block_sizes", "noise_precision",
+    "PointPlan", "plan_point", "computed_bits",
 ]
 
 #: shortest sub-block (bits) of the error counts the over-dispersion test uses
@@ -136,6 +140,15 @@ class BerOracle(Oracle):
         "noise": Opt("choice", "auto", "precision of the normals drawn: float32 (faster), "
                      "float64, or auto (float32 where theory BER >= 1e-10)",
                      choices=("auto",) + NOISE_PRECISIONS),
+        "method": Opt("choice", "plain", "plain (the true noise: any device) or importance "
+                      "(noise biased toward the decision boundaries, errors weighted by the "
+                      "likelihood ratio: deep BER in seconds, valid only for a memoryless "
+                      "symbol-by-symbol demodulator at one sample per symbol; a guard checks "
+                      "it against plain sampling first; always decided by its interval)",
+                      choices=("plain", "importance")),
+        "guard_ber": Opt("number", 1e-4, "method: importance: theory BER of the guard point, "
+                         "where importance and plain sampling must agree before any point is "
+                         "trusted", minimum=1e-6, maximum=1e-2),
     }
 
     @staticmethod
@@ -152,13 +165,20 @@ class BerOracle(Oracle):
         if opts is None or (not opts["ebn0_db"] and
                             spec.scheme.modulation not in THEORY_MODULATIONS):
             return [self.name]  # no theory curve, no default points: one (skipped) verdict
-        return [self.point_name(x) for x in self.points(spec, opts)]
+        guard = [self.guard_name] if opts["method"] == "importance" else []
+        return guard + [self.point_name(x) for x in self.points(spec, opts)]
+
+    @property
+    def guard_name(self) -> str:
+        return f"{self.name}.importance_guard"
 
     def validate(self, opts, spec, *, file):
         # a point whose theory BER (or limit) is near 0.5 (theory and limit then coincide) or
         # below 1e-300 (it underflows: nothing could be decided) cannot be judged: refused
         # here, so that no gate is silently off
         mod = spec.scheme.modulation
+        if opts["method"] == "importance":
+            _importance_applies(spec, file=file, key=f"checks.{self.name}.method")
         if opts["ebn0_db"] is None or mod not in THEORY_MODULATIONS:
             return
         for x in opts["ebn0_db"]:
@@ -200,8 +220,12 @@ class BerOracle(Oracle):
         clock = _Budget(bench, plans)
         engine = bench.engine if bench.engine is not None else InProcess(bench)
         journal = bench.journal if bench.journal is not None else Journal()
+        guard = None
+        if opts["method"] == "importance":
+            guard = self._guard(bench, opts, engine, journal, seed, impair)
+            yield guard
         for ebn0 in points:  # each point as soon as it is decided
-            v = self._point(bench, opts, engine, journal, clock, seed, ebn0, risk, impair)
+            v = self._point(bench, opts, engine, journal, clock, seed, ebn0, risk, impair, guard)
             if v.outcome != "error":
                 journal.decided(bench.spec.name, v.name, v)
             yield v
@@ -212,7 +236,8 @@ class BerOracle(Oracle):
         risk = 1 - opts["confidence"]
         return risk / n_points if opts["familywise"] else risk
 
-    def _point(self, bench, opts, engine, journal, clock, seed, ebn0, risk, impair) -> Verdict:
+    def _point(self, bench, opts, engine, journal, clock, seed, ebn0, risk, impair,
+               guard: Verdict | None = None) -> Verdict:
         mod = bench.convention.modulation
         k = bench.k
         name = self.point_name(ebn0)
@@ -224,6 +249,9 @@ class BerOracle(Oracle):
         p0 = float(theory_ber(mod, ebn0))
         p1 = float(theory_ber(mod, ebn0 - opts["margin_db"]))
         max_bits = int(opts["max_bits"])
+        if guard is not None:
+            return self._weighted_point(bench, opts, engine, journal, clock, seed, ebn0, risk,
+                                        impair, guard, saved)
         if not 0 < p0 < p1 < 0.5 or p1 * max_bits < 1:
             return Verdict(name, "skipped",
                            f"theory BER at {ebn0:g} dB is {p0:.3g} (limit {p1:.3g}): too small to "
@@ -299,26 +327,38 @@ class BerOracle(Oracle):
             r = block_interval(counts, sub, conf)
         else:
             r = clopper_pearson(errors, bits_sent, conf)
+        how = (f"{'sequential test' if method == 'sprt' else 'interval test'} decided after "
+               f"{used_bits:.3g} bits")
+        extra = (f"; errors come in bursts (dispersion {bursty:.1f}), so the decision uses the "
+                 f"interval widened by it" if bursty else "")
+        inconclusive = (f"budget of {max_bits:.3g} bits spent before a decision (raise "
+                        f"max_bits, or widen margin_db)")
+        return self._verdict(bench, opts, seed, ebn0, p0, p1, outcome, ber, r, conf, {
+            "bits": bits_sent, "errors": errors, "decided_after_bits": used_bits,
+            "decided_after_errors": used_errors, "method": method, "risk": risk,
+            "dispersion": r.dispersion, "sub_block_bits": sub, "noise": precision,
+            "blocks": done, "impairments": impair.describe() if impair.stages else "",
+        }, f"{errors} errors in {bits_sent:.3g} bits; {how}", extra, inconclusive)
+
+    def _verdict(self, bench, opts, seed, ebn0, p0, p1, outcome, ber, r, conf, measured,
+                 how: str, extra: str, inconclusive: str, trusted: bool = True) -> Verdict:
+        """A point's verdict from what it measured: the estimate ``ber``, its interval ``r``
+        (at ``conf``), the implementation loss, the better-than-theory rule, the reason.
+        ``trusted=False``: the estimate is not valid (``inconclusive`` says why)."""
+        mod = bench.convention.modulation
         interval = (float(r.low), float(r.high))
         loss = implementation_loss_db(mod, ebn0, ber, interval)
         details: BerPointRecord = {
             "ebn0_db": ebn0, "theory_ber": p0, "limit_ber": p1, "margin_db": opts["margin_db"],
-            "bits": bits_sent, "errors": errors, "decided_after_bits": used_bits,
-            "decided_after_errors": used_errors, "method": method, "risk": risk,
             "loss_db": loss.loss_db, "loss_interval_db": [loss.low_db, loss.high_db],
-            "dispersion": r.dispersion, "sub_block_bits": sub,
-            "energy": opts["energy"], "sides": bench.sides(), "noise": precision,
-            "blocks": done,
-            "impairments": impair.describe() if impair.stages else "",
+            "energy": opts["energy"], "sides": bench.sides(), **measured,
         }
-        how = ("sequential test" if method == "sprt" else "interval test")
-        head = (f"BER {ber:.3g} at {ebn0:g} dB ({errors} errors in {bits_sent:.3g} bits; "
-                f"{how} decided after {used_bits:.3g} bits); theory {p0:.3g}, limit {p1:.3g} "
+        head = (f"BER {ber:.3g} at {ebn0:g} dB ({how}); theory {p0:.3g}, limit {p1:.3g} "
                 f"(theory at {ebn0 - opts['margin_db']:g} dB); implementation loss "
                 f"{loss.describe()}")
-        extra = (f"; errors come in bursts (dispersion {bursty:.1f}), so the decision uses the "
-                 f"interval widened by it" if bursty else "")
-        if loss.high_db < -BETTER_THAN_THEORY_DB:
+        if not trusted:  # the estimate itself is not valid: nothing to judge it by
+            reason = head + ": " + inconclusive + extra
+        elif loss.high_db < -BETTER_THAN_THEORY_DB:
             outcome = "fail"
             reason = (head + f": better than theory by more than {BETTER_THAN_THEORY_DB:g} dB, "
                       f"which no demodulator achieves over this channel, so the noise "
@@ -329,10 +369,96 @@ class BerOracle(Oracle):
             reason = (head + f": worse than the {opts['margin_db']:g} dB margin allows" + extra
                       + _consequence(bench))
         else:
-            reason = (head + f": budget of {max_bits:.3g} bits spent before a decision (raise "
-                      f"max_bits, or widen margin_db)" + extra)
-        return Verdict(name, outcome, reason, statistic=ber, interval=interval, confidence=conf,
-                       limit=p1, unit="BER", seed=seed, details=details)
+            reason = head + ": " + inconclusive + extra
+        return Verdict(self.point_name(ebn0), outcome, reason, statistic=ber,
+                       interval=interval, confidence=conf, limit=p1, unit="BER", seed=seed,
+                       details=details)
+
+    # -- importance sampling (method: importance; see oracles/_importance.py) ----------------
+    def _job_maker(self, seed, opts):
+        def make(ebn0, point, index, offset, bits, method):
+            return BlockJob(self.name, point, index, offset, bits, seed, ebn0, opts["energy"],
+                            tuple(opts["impairments"]), "float64", method)
+        return make
+
+    def _guard(self, bench, opts, engine, journal, seed, impair) -> Verdict:
+        name = self.guard_name
+        saved = journal.load(bench.spec.name, name) or {}
+        if "verdict" in saved:
+            bench.warn(f"resumed: {name} was decided before the interrupt; its verdict is "
+                       f"taken from the campaign file")
+            return Verdict.from_json(saved["verdict"])
+        mod = bench.convention.modulation
+        k = bench.k
+        g = run_guard(engine, self._job_maker(seed, opts), name, mod, opts["guard_ber"],
+                      block_sizes(k, opts["guard_ber"], opts), importance_block_sizes(k, opts),
+                      int(opts["max_bits"]))
+        details: ImportanceGuardRecord = dict(g._asdict())
+        if g.why:
+            v = Verdict(name, "inconclusive",
+                        f"importance sampling is not valid for this device: {g.why}; "
+                        f"{g.describe()}; every point of this check is inconclusive (use "
+                        f"method: plain)", statistic=g.importance_ber,
+                        interval=g.importance_interval, limit=g.plain_ber, unit="BER",
+                        seed=seed, details=details)
+        else:
+            v = Verdict(name, "pass",
+                        f"importance sampling agrees with plain sampling and its weights pass "
+                        f"the diagnostics: {g.describe()}", statistic=g.importance_ber,
+                        interval=g.importance_interval, limit=g.plain_ber, unit="BER",
+                        seed=seed, details=details)
+        journal.decided(bench.spec.name, name, v)
+        return v
+
+    def _weighted_point(self, bench, opts, engine, journal, clock, seed, ebn0, risk, impair,
+                        guard: Verdict, saved) -> Verdict:
+        name = self.point_name(ebn0)
+        mod = bench.convention.modulation
+        p0 = float(theory_ber(mod, ebn0))
+        p1 = float(theory_ber(mod, ebn0 - opts["margin_db"]))
+        if guard.outcome != "pass":
+            why = guard.details.get("why") or guard.reason
+            return Verdict(name, "inconclusive",
+                           f"not measured: importance sampling is not valid for this device "
+                           f"({self.guard_name} did not pass: {why}); use method: plain",
+                           statistic=None, limit=p1, seed=seed)
+        max_bits = int(opts["max_bits"])
+        sizes = importance_block_sizes(bench.k, opts)
+        state = saved.get("state")
+        done = state["blocks"] if state else 0
+        if state:
+            bench.warn(f"resumed: {name} continues at block {done} ({state['bits']:.3g} bits "
+                       f"kept from the campaign file)")
+        make = self._job_maker(seed, opts)
+        jobs = (make(ebn0, name, i, offset, n, "importance")
+                for i, offset, n in block_schedule(sizes.first, sizes.largest, max_bits,
+                                                   sizes.unit) if i >= done)
+
+        def progress(bits, errors):
+            bench.progress(name, bits / max_bits, f"{bits:.3g} bits (importance sampling)")
+            clock.measured(bits)
+
+        run = run_weighted(engine, jobs, p1, risk, state=state, progress=progress,
+                           save=lambda st: journal.save(bench.spec.name, name, st))
+        t = run.tally
+        conf = 1 - 2 * (risk / (run.looks * (run.looks + 1)) if run.looks else risk)
+        r = weighted_interval(t, conf)
+        plain_bits = t.plain_bits_for_same_width(bench.k)
+        speedup = plain_bits / run.bits if plain_bits == plain_bits and run.bits else math.nan
+        how = (f"importance sampling: {run.bits:.3g} bits in {run.blocks} device calls, "
+               f"effective sample size {t.ess:.3g}, largest weight share "
+               f"{100 * t.max_share:.2g} %, {run.looks} looks; plain sampling would need "
+               f"{plain_bits:.3g} bits for this interval, {speedup:.3g} times more")
+        inconclusive = run.why or (f"budget of {max_bits:.3g} bits spent before a decision "
+                                   f"(raise max_bits, or widen margin_db)")
+        return self._verdict(bench, opts, seed, ebn0, p0, p1, run.outcome, t.mean, r, conf, {
+            "bits": run.bits, "errors": run.errors, "decided_after_bits": run.decided_bits,
+            "decided_after_errors": run.errors, "method": "importance", "risk": risk,
+            "dispersion": None, "sub_block_bits": sizes.sub, "noise": "float64",
+            "blocks": run.blocks, "impairments": impair.describe() if impair.stages else "",
+            "ess": t.ess, "max_weight_share": t.max_share, "device_calls": run.blocks,
+            "speedup": speedup, "plain_bits_same_width": plain_bits,
+        }, how, "", inconclusive, trusted=not run.why)
 
 
 class BlockSizes(NamedTuple):
@@ -353,6 +479,31 @@ def block_sizes(k: int, p0: float, opts) -> BlockSizes:
     largest = max(sub, (opts["block_bits"] // sub) * sub)
     first = min(largest, max(sub, (FIRST_BLOCK // sub) * sub))
     return BlockSizes(sub, first, largest, byte_sym)
+
+
+def importance_block_sizes(k: int, opts) -> BlockSizes:
+    """Block sizes under importance sampling: errors are common under the biased noise, so the
+    blocks start at 2^17 bits and double to ``block_bits`` whatever the point's BER."""
+    unit = 8 * k
+    largest = max(unit, (opts["block_bits"] // unit) * unit)
+    first = min(largest, max(unit, (FIRST_BLOCK // unit) * unit))
+    return BlockSizes(unit, first, largest, unit)
+
+
+def _importance_applies(spec, *, file, key) -> None:
+    """Refuse importance sampling where its per-symbol weights cannot be valid."""
+    mod = spec.scheme.modulation
+    why = None
+    if mod not in THEORY_MODULATIONS:
+        why = f"it needs a theory curve, and {mod} has none"
+    elif spec.scheme.samples_per_symbol != 1:
+        why = (f"it is built for one sample per symbol, and the scheme has "
+               f"samples_per_symbol={spec.scheme.samples_per_symbol} (use method: plain)")
+    elif conventions_for(mod)[0].rule.differential:
+        why = (f"a differential detector ({mod}) decides on two symbols' noise, so the "
+               f"per-symbol weights are not valid (use method: plain)")
+    if why:
+        raise ConfigError(f"method=importance: {why}", file=file, key=key)
 
 
 def noise_precision(opts, p0: float) -> str:
@@ -442,8 +593,8 @@ class _Budget:
         rate = bits_sent / max(time.perf_counter() - self.t0, 1e-9)
         need = self.total / rate
         if need > self.budget:
-            self.bench.warn(f"warning: {self.bench.spec.name}: at the measured {rate:.3g} bit/s the BER "
-                            f"check needs about {need:.3g} s on average, more than the time "
+            self.bench.warn(f"warning: {self.bench.spec.name}: at the measured {rate:.3g} "
+                            f"bit/s the BER check needs about {need:.3g} s on average, more than the time "
                             f"budget of {self.budget:g} s (run modemverify plan for the "
                             f"details; add workers, or relax the points)")
 

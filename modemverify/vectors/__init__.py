@@ -4,6 +4,7 @@
 - :mod:`~modemverify.vectors.coverage`: every label, and de Bruijn sequences (every transition);
 - :mod:`~modemverify.vectors.strategies`: hypothesis strategies for bit and label sequences;
 - :mod:`~modemverify.vectors.channels`: calibrated AWGN and deterministic impairments;
+- :mod:`~modemverify.vectors.biasing`: biased noise and its weights for importance sampling;
 - :mod:`~modemverify.vectors.recording`: vector sets on disk (imported from the module itself, so
   that reading vectors does not load the file-format code).
 
@@ -14,10 +15,10 @@ the same name, so ``modemverify.vectors.prbs`` always names the submodule. Impor
 
 from __future__ import annotations
 
-from . import bits, channels, coverage, prbs, strategies
+from . import biasing, bits, channels, coverage, prbs, strategies
 
 #: the submodules whose ``__all__`` this door re-exports
-_SUBMODULES = (channels, coverage, strategies, bits, prbs,)
+_SUBMODULES = (channels, biasing, coverage, strategies, bits, prbs,)
 _NAMES = {m.__name__.rsplit(".", 1)[1] for m in _SUBMODULES}
 #: every public name of those submodules, except one that would hide a submodule of the same
 #: name (``vectors.prbs`` is the submodule; its generator is ``vectors.prbs.prbs``)

@@ -46,6 +46,18 @@ def scheme(**changes):
     (base(scheme={"convention": "3gpp"}), "scheme.modulation", "missing key 'modulation'"),
     (base(checks={"roundtrip": {"prbs": "prbs16"}}), "checks.roundtrip.prbs",
      "expected one of prbs7, prbs9, prbs11"),
+    (base(checks={"ber": {"method": "is"}}), "checks.ber.method",
+     "expected one of plain, importance"),
+    (base(checks={"ber": {"method": "importance", "guard_ber": 0.1}}), "checks.ber.guard_ber",
+     "expected a value <= 0.01"),
+    # importance sampling where its per-symbol weights cannot be valid
+    (base(scheme={"modulation": "dqpsk", "convention": "gray"},
+          checks={"ber": {"method": "importance"}}), "checks.ber.method",
+     "a differential detector (dqpsk) decides on two symbols' noise"),
+    (base(scheme={"modulation": "qpsk", "convention": "3gpp", "samples_per_symbol": 4,
+                  "pulse": {"shape": "rrc", "rolloff": 0.25}},
+          checks={"ber": {"method": "importance"}}), "checks.ber.method",
+     "built for one sample per symbol"),
     # numbers are finite (YAML .nan and .inf), the mechanism's own rule for every option
     (base(isolate=True, timeout_s=float("inf")), "timeout_s", "expected a finite number"),
     (base(checks={"ber": {"margin_db": float("nan")}}), "checks.ber.margin_db",
