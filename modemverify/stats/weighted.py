@@ -149,7 +149,7 @@ def weighted_interval(tally: WeightedTally, confidence: float) -> ConfidenceInte
 def look_risk(risk: float, look: int) -> float:
     """The risk spent at look ``look`` (1, 2, ...): ``risk / (look (look + 1))``.
 
-    >>> round(sum(look_risk(0.05, j) for j in range(1, 10_000)), 5)
+    >>> round(sum(look_risk(0.05, j) for j in range(1, 10_000)), 6)
     0.049995
     """
     return risk / (look * (look + 1))
