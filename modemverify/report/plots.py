@@ -111,7 +111,7 @@ def constellation_plot(result, folder: Path, stem: str) -> list[Figure]:
 
 def waterfall_plot(result, folder: Path, stem: str) -> list[Figure]:
     """Measured BER with interval bars over the theory curve and the margin (limit) curve."""
-    pts = [v for v in result.verdicts if v.name.startswith("ber.") and "ebn0_db" in v.details]
+    pts = [v for v in result.verdicts if v.name.startswith("ber.") and "limit_ber" in v.details]
     if not pts:
         return []
     plt = _pyplot()

@@ -20,6 +20,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 from scipy import stats
+from test_records import assert_records
 
 from modemverify.blocks import Journal
 from modemverify.config import load_device
@@ -198,6 +199,7 @@ def test_a_correct_device_passes_a_deep_point_and_the_estimate_holds_theory(tmp_
     for words in ("importance sampling", "device calls", "effective sample size",
                   "plain sampling would need"):
         assert words in point.reason
+    assert assert_records(v) == 2  # the guard's record and the point's
 
 
 def loss_degrees(modulation, ebn0, loss_db):

@@ -1,8 +1,8 @@
 """The records the reports read (modemverify.records) are what the oracles write.
 
 A correct RRC-shaped 16QAM device (TS 38.211 5.1.4 table) and one with every label bit inverted
-(the table rotated by 180 degrees) are checked with a spectral mask; every verdict that carries a record must carry each of its
-required keys and no key the record does not declare.
+(the table rotated by 180 degrees) are checked with a spectral mask; every verdict that carries
+a record must carry each of its required keys and no key the record does not declare.
 """
 
 from __future__ import annotations
@@ -13,6 +13,7 @@ from test_waveforms import RrcModem, run
 from modemverify.records import (
     BerPointRecord,
     EvmRecord,
+    ImportanceGuardRecord,
     MappingRecord,
     SoftOutputRecord,
     SpectrumRecord,
@@ -23,7 +24,23 @@ RECORDS = {"mapping": MappingRecord, "evm": EvmRecord, "spectrum.obw": SpectrumR
 
 
 def _record_for(name):
+    if name == "ber.importance_guard":
+        return ImportanceGuardRecord
     return BerPointRecord if name.startswith("ber.") else RECORDS.get(name)
+
+
+def assert_records(verdicts):
+    """Every verdict with a record carries its required keys and no other; returns how many."""
+    checked = 0
+    for name, verdict in verdicts.items():
+        record = _record_for(name)
+        if record is None or verdict.outcome in ("skipped", "error") or not verdict.details:
+            continue
+        keys = set(verdict.details)
+        assert record.__required_keys__ <= keys, (name, record.__required_keys__ - keys)
+        assert keys <= record.__required_keys__ | record.__optional_keys__, name
+        checked += 1
+    return checked
 
 
 @pytest.mark.parametrize("swap", [False, True], ids=["correct", "inverted"])
@@ -34,15 +51,7 @@ def test_every_record_has_exactly_its_declared_keys(swap):
 
     v, _ = run(Inverted() if swap else RrcModem(),
                checks={"spectrum": {"mask": [[0.7, 0], [1.0, -30]]}, "llr": {"bits": 20000}})
-    checked = 0
-    for name, verdict in v.items():
-        record = _record_for(name)
-        if record is None or verdict.outcome in ("skipped", "error"):
-            continue
-        keys = set(verdict.details)
-        assert record.__required_keys__ <= keys, (name, record.__required_keys__ - keys)
-        assert keys <= record.__required_keys__ | record.__optional_keys__, name
-        checked += 1
+    checked = assert_records(v)
     assert checked >= 4  # mapping, evm, spectrum.obw and the BER points
     if swap:
         assert set(v["mapping"].details) >= {"relation", "differing_labels"}
