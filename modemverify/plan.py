@@ -23,9 +23,10 @@ from dataclasses import dataclass
 from .bench import open_bench
 from .blocks import BlockJob, block_schedule, run_block
 from .errors import ConfigError
+from .oracles._importance import GUARD_ERRORS, GUARD_MAX_BITS
 from .oracles.ber import ORACLE as BER
 from .oracles.ber import PointPlan, block_sizes, computed_bits, noise_precision, plan_point
-from .schemes.theory import THEORY_MODULATIONS
+from .schemes.theory import THEORY_MODULATIONS, ebn0_for_ber
 from .spec import DeviceSpec
 
 __all__ = ["PROBE_SECONDS", "Plan", "plan", "render_plan"]
@@ -46,6 +47,11 @@ class Plan:
     probe_bits: int
     workers: int
     risk: float
+    #: ``plain`` or ``importance``
+    method: str = "plain"
+    #: importance sampling: the guard's Eb/N0, its theory BER, the plain bits it sends and the
+    #: seconds they take at the plain rate
+    guard: tuple[float, float, float, float] | None = None
 
     def seconds(self, bits: float) -> float:
         return bits / (self.rate * self.workers)
@@ -69,23 +75,31 @@ def plan(spec: DeviceSpec, *, workers: int = 1, adapter=None) -> Plan:
     risk = BER.risk(opts, len(points))
     k = spec.scheme.bits_per_symbol
     plans = [plan_point(mod, x, opts, risk, k) for x in points]
+    guard = None
     bench = open_bench(spec, adapter)
     try:
-        rate, probed = _probe(bench, opts, points[0], plans[0])
+        rate, probed = _probe(bench, opts, points[0], plans[0], opts["method"])
+        if opts["method"] == "importance":  # the guard's plain sampling, at its own rate
+            x = float(ebn0_for_ber(mod, opts["guard_ber"]))
+            plain_rate, _ = _probe(bench, opts, x, plan_point(mod, x, opts, risk, k), "plain")
+            bits = min(GUARD_ERRORS / opts["guard_ber"], GUARD_MAX_BITS)
+            guard = (x, opts["guard_ber"], bits, bits / (plain_rate * workers))
     finally:
         bench.device.close()
-    return Plan(spec.name, mod, plans, rate, probed, int(workers), risk)
+    return Plan(spec.name, mod, plans, rate, probed, int(workers), risk, opts["method"], guard)
 
 
-def _probe(bench, opts, ebn0, point: PointPlan) -> tuple[float, int]:
-    """Bits per second over real blocks of the first point (their own streams)."""
-    sizes = point.sizes or block_sizes(bench.k, 1e-3, opts)
+def _probe(bench, opts, ebn0, point: PointPlan, method: str) -> tuple[float, int]:
+    """Bits per second over real blocks of a point (their own streams)."""
+    sizes = point.sizes if point.sizes and method == opts["method"] else \
+        block_sizes(bench.k, 1e-3, opts)
     precision = noise_precision(opts, point.theory_ber)
     bits = 0
     t0 = time.perf_counter()
     for i, offset, n in block_schedule(sizes.first, sizes.first, 1 << 40, sizes.unit):
         run_block(bench, BlockJob(BER.name, "plan.probe", i, offset, n, 0, ebn0,
-                                  opts["energy"], tuple(opts["impairments"]), precision))
+                                  opts["energy"], tuple(opts["impairments"]), precision,
+                                  method))
         bits += n
         took = time.perf_counter() - t0
         if i >= 1 and took >= PROBE_SECONDS:
@@ -117,6 +131,13 @@ def render_plan(p: Plan) -> str:
             f"{'time at theory':>14}  {'time at limit':>13}")
     lines.append(head)
     total = 0.0
+    guard_s = 0.0
+    if p.guard is not None:
+        x, g, bits, guard_s = p.guard
+        lines.append(f"  importance sampling: bits at theory and at the limit are the first "
+                     f"block (a device away from the limit is decided there, one at the limit "
+                     f"runs to max_bits); first the guard at {x:.3g} dB (theory {g:.3g}): "
+                     f"about {bits:.3g} bits of plain sampling ({_duration(guard_s)})")
     for x in p.points:
         if x.sizes is None:
             lines.append(f"  {x.ebn0_db:>5g}dB  theory {x.theory_ber:.3g}, limit "
@@ -132,7 +153,8 @@ def render_plan(p: Plan) -> str:
             f"{_duration(p.seconds(capped1)):>13}")
         if x.warning:
             lines.append(f"    warning: {x.warning}")
-    lines.append(f"  expected in all: about {_duration(p.seconds(total))} (the larger average "
+    lines.append(f"  expected in all: about {_duration(p.seconds(total) + guard_s)} (the larger "
+                 f"average "
                  f"of each point, in whole blocks, capped at max_bits; a device between theory "
                  f"and the limit takes longer)")
     if p.workers > 1:

@@ -56,6 +56,7 @@ from ..stats import (
     expected_sample_size,
     fixed_sample_size,
     implementation_loss_db,
+    look_risk,
     weighted_interval,
 )
 from ..vectors.channels import FLOAT32_NOISE_MIN_BER, NOISE_PRECISIONS, channel_from_config
@@ -441,7 +442,7 @@ class BerOracle(Oracle):
         run = run_weighted(engine, jobs, p1, risk, state=state, progress=progress,
                            save=lambda st: journal.save(bench.spec.name, name, st))
         t = run.tally
-        conf = 1 - 2 * (risk / (run.looks * (run.looks + 1)) if run.looks else risk)
+        conf = 1 - 2 * (look_risk(risk, run.looks) if run.looks else risk / 3)
         r = weighted_interval(t, conf)
         plain_bits = t.plain_bits_for_same_width(bench.k)
         speedup = plain_bits / run.bits if plain_bits == plain_bits and run.bits else math.nan
@@ -564,9 +565,14 @@ def plan_point(modulation: str, ebn0: float, opts, risk: float, k: int = 1) -> P
     max_bits = int(opts["max_bits"])
     if not 0 < p0 < p1 < 0.5:
         return PointPlan(ebn0, p0, p1, math.nan, math.nan, 0, max_bits, "")
+    fixed = fixed_sample_size(p0, p1, risk, risk)
+    if opts["method"] == "importance":
+        # errors are common under the biased noise: a device away from the limit is decided
+        # at the first look, one at the limit runs to max_bits
+        sizes = importance_block_sizes(k, opts)
+        return PointPlan(ebn0, p0, p1, sizes.first, sizes.first, fixed, max_bits, "", sizes)
     a0 = expected_sample_size(p0, p0, p1, risk, risk)
     a1 = expected_sample_size(p1, p0, p1, risk, risk)
-    fixed = fixed_sample_size(p0, p1, risk, risk)
     warning = ""
     if max(a0, a1) > max_bits:
         warning = (f"the sequential test needs on average {a0:.3g} bits at theory and "

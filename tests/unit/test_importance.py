@@ -26,6 +26,7 @@ from modemverify.blocks import Journal
 from modemverify.config import load_device
 from modemverify.errors import ConfigError
 from modemverify.execution import Execution
+from modemverify.plan import plan, render_plan
 from modemverify.runner import check
 from modemverify.schemes.conventions import get_convention
 from modemverify.schemes.theory import ber as theory_ber
@@ -133,7 +134,8 @@ def test_a_differential_scheme_is_refused_by_the_mixture():
 
 def test_the_risk_spent_over_every_look_sums_to_the_stated_risk():
     assert sum(look_risk(0.05, j) for j in range(1, 100_000)) == pytest.approx(0.05, rel=1e-4)
-    assert look_risk(0.05, 1) == 0.025 and look_risk(0.05, 2) == pytest.approx(0.05 / 6)
+    assert look_risk(0.05, 1) == pytest.approx(0.05 / 3)
+    assert look_risk(0.05, 2) == pytest.approx(0.05 / 6)
 
 
 def test_the_interval_is_students_t_on_the_mean_with_the_effective_sample_size():
@@ -318,3 +320,13 @@ def test_a_device_exactly_at_the_limit_is_not_passed_when_the_budget_ends(tmp_pa
     point = v[f"ber.ebn0={x:g}dB"]
     assert point.outcome == "inconclusive", point.reason
     assert "budget of 1e+06 bits spent" in point.reason
+
+
+def test_the_plan_gives_the_guard_and_a_first_block_per_point_not_the_plain_averages(tmp_path):
+    x, checks = deep("qpsk", 1e-9)
+    spec = load_device(device_file(tmp_path, "Modem", "qpsk", "{}", checks))
+    text = render_plan(plan(spec))
+    assert "first the guard at 8.4 dB (theory 0.0001)" in text
+    assert f"{x:g}dB" in text and "1.31e+05" in text
+    # plain sampling at 1e-9 would warn that max_bits cannot decide it; importance does not
+    assert "warning" not in text
