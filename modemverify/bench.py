@@ -294,7 +294,7 @@ def open_bench(spec: DeviceSpec, adapter=None) -> Bench:
 
     device = GuardedDevice.opening(opener, scheme.bits_per_symbol, scheme.samples_per_symbol,
                                    name=spec.name, tail_samples=scheme.tail_samples,
-                                   input_tail=scheme.pulse.tail)
+                                   input_tail=scheme.pulse.tail, streaming=scheme.streaming)
     try:
         conv = scheme.reference
         return Bench(spec=spec, device=device, convention=conv,

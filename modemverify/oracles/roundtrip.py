@@ -15,11 +15,7 @@ hanging device hundreds of times, and a failure that does not recur would turn i
 
 from __future__ import annotations
 
-import random
-
 import numpy as np
-from hypothesis import HealthCheck, Phase, find, settings
-from hypothesis.errors import Flaky, NoSuchExample
 
 from ..bench import Bench
 from ..errors import AdapterError
@@ -29,24 +25,11 @@ from ..vectors.coverage import de_bruijn_labels
 from ..vectors.prbs import PRBS_PATTERNS, prbs
 from ..vectors.strategies import bit_sequences
 from ..verdict import Verdict
+from ._search import DeviceFailed, smallest_failure
+from ._search import bits_text as _bits_text
 from .base import Oracle
 
 __all__ = ["RoundtripOracle", "ORACLE"]
-
-
-class _DeviceFailed(BaseException):
-    """Raised from hypothesis's condition to stop the search (hypothesis lets a BaseException
-    through at once, where it would shrink an Exception)."""
-
-    def __init__(self, error: AdapterError, bits):
-        super().__init__(str(error))
-        self.error, self.bits = error, bits
-
-
-def _bits_text(bits: np.ndarray, k: int) -> str:
-    s = "".join(map(str, bits.tolist()))
-    groups = " ".join(s[i:i + k] for i in range(0, len(s), k))
-    return f"[{groups}]"
 
 
 class RoundtripOracle(Oracle):
@@ -102,33 +85,14 @@ class RoundtripOracle(Oracle):
                 first_failure = (label, bits, problem)
                 break
 
-        failed: list = []  # the sequences that failed, for a failure that does not recur
-
-        def fails(b) -> bool:
-            try:
-                bad = outcome(b) is not None
-            except AdapterError as exc:
-                raise _DeviceFailed(exc, b) from None
-            if bad:
-                failed.append(b)
-            return bad
-
         # hypothesis: find the smallest failing sequence (always searched, so a failure that
         # only short or odd-length inputs trigger is found too)
-        hyp_settings = settings(max_examples=opts["max_examples"], database=None,
-                                deadline=None, derandomize=False,
-                                suppress_health_check=list(HealthCheck),
-                                phases=[Phase.generate, Phase.shrink])
-        minimal = None
         try:
-            minimal = find(bit_sequences(k, min_symbols=1, max_symbols=opts["max_symbols"]),
-                           fails, settings=hyp_settings, random=random.Random(seed))
-        except NoSuchExample:
-            pass
-        except Flaky:  # failed once, then not: report the sequence it failed on
-            minimal = failed[-1] if failed else None
-        except _DeviceFailed as stop:
-            bits = np.asarray(stop.bits, dtype=np.uint8)
+            minimal = smallest_failure(
+                bit_sequences(k, min_symbols=1, max_symbols=opts["max_symbols"]), outcome,
+                max_examples=opts["max_examples"], seed=seed)
+        except DeviceFailed as stop:
+            bits = np.asarray(stop.example, dtype=np.uint8)
             return device_failed("a generated sequence", f"bits={_bits_text(bits, k)}",
                                  stop.error)
         if minimal is None and first_failure is not None and first_failure[1].size <= 64 * k:
