@@ -57,6 +57,10 @@ class Bench:
     warn: Callable[[str], None] = field(default=lambda text: None)
     #: seconds a BER check should take at most; it warns when it will likely take longer
     time_budget_s: float | None = None
+    #: counterexamples an earlier run kept with its report, by verdict name
+    #: ({name: [records.CounterexampleRecord, ...]}): the checks that find concrete failing
+    #: inputs try these first (vectors.kept)
+    kept: dict = field(default_factory=dict)
 
     @property
     def k(self) -> int:

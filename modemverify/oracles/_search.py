@@ -21,7 +21,7 @@ from hypothesis.errors import Flaky, NoSuchExample
 
 from ..errors import AdapterError
 
-__all__ = ["DeviceFailed", "smallest_failure", "bits_text"]
+__all__ = ["DeviceFailed", "smallest_failure", "replay_kept", "kept_text", "bits_text"]
 
 
 class DeviceFailed(BaseException):
@@ -58,6 +58,42 @@ def smallest_failure(strategy, problem, *, max_examples: int, seed: int):
         return None
     except Flaky:
         return failed[-1] if failed else None
+
+
+def replay_kept(records, example_of, problem) -> tuple[list, list[int]]:
+    """Try the counterexamples an earlier run kept (``Bench.kept``) before any search: the
+    examples (``example_of(record)``) and the positions of those for which ``problem`` still
+    gives a reason. Raises :class:`DeviceFailed` when the device misbehaves on one."""
+    examples = [example_of(rec) for rec in records]
+    failing = []
+    for i, example in enumerate(examples):
+        try:
+            if problem(example) is not None:
+                failing.append(i)
+        except AdapterError as exc:
+            raise DeviceFailed(exc, example) from None
+    return examples, failing
+
+
+def kept_text(tried: int, failing: list[int]) -> str:
+    """How the kept counterexamples fared, for a verdict's reason ("" when none were kept).
+
+    >>> kept_text(2, [0, 1])
+    '; tried the 2 kept counterexamples first: still failing'
+    >>> kept_text(1, [])
+    '; tried the 1 kept counterexample first: now passes'
+    >>> kept_text(3, [2])
+    '; tried the 3 kept counterexamples first: 1 still failing, 2 now pass'
+    """
+    if not tried:
+        return ""
+    head = f"; tried the {tried} kept counterexample{'s' if tried > 1 else ''} first: "
+    if len(failing) == tried:
+        return head + "still failing"
+    if not failing:
+        return head + ("now pass" if tried > 1 else "now passes")
+    passing = tried - len(failing)
+    return head + f"{len(failing)} still failing, {passing} now pass{'es' if passing == 1 else ''}"
 
 
 def bits_text(bits: np.ndarray, k: int) -> str:

@@ -25,6 +25,9 @@ Without ``scheme.streaming`` the device declares no state, and ``streaming.repea
 that: the same bits modulated twice give the same samples, and the same waveform demodulated
 twice the same bits (a device that draws dither or keeps state it does not declare fails).
 
+Splits an earlier run kept with its report (``Bench.kept``, :mod:`modemverify.vectors.kept`)
+are tried before the search; one that still fails is the counterexample.
+
 A device that misbehaves on a call ends its verdict as an ``error`` naming the call (the
 search is not continued: see :mod:`modemverify.oracles._search`).
 """
@@ -41,7 +44,8 @@ from ..spec import DeviceSpec
 from ..vectors.bits import random_bits
 from ..vectors.strategies import bit_sequences
 from ..verdict import Verdict
-from ._search import DeviceFailed, bits_text, smallest_failure
+from ..vectors.kept import bits_of
+from ._search import DeviceFailed, bits_text, kept_text, replay_kept, smallest_failure
 from .base import Oracle
 
 __all__ = ["StreamingOracle", "ORACLE", "RELATIVE_TOLERANCE", "first_difference", "splits"]
@@ -204,17 +208,28 @@ class StreamingOracle(Oracle):
 
         problem = modulate_problem if call == "modulate" else demodulate_problem
         strategy = splits(k, opts["max_chunks"], opts["max_chunk_symbols"])
+        minimal, extra, note = None, {}, ""
         try:
-            minimal = smallest_failure(strategy, problem, max_examples=opts["max_examples"],
-                                       seed=seed)
+            # the splits an earlier run kept (vectors.kept) first; one that still fails is
+            # the counterexample, with no new search
+            kept, still = replay_kept(
+                bench.kept.get(name, ()),
+                lambda rec: (tuple(rec["chunks"]), bits_of(rec["bits"])), problem)
+            if kept:
+                extra["kept"] = {"tried": len(kept), "failing": still}
+                note = kept_text(len(kept), still)
+            minimal = (min((kept[i] for i in still), key=lambda ex: (ex[1].size, len(ex[0])))
+                       if still else
+                       smallest_failure(strategy, problem, max_examples=opts["max_examples"],
+                                        seed=seed))
             if minimal is None:
                 return Verdict(name, "pass",
                                f"{opts['max_examples']} hypothesis splits of up to "
                                f"{opts['max_chunks']} chunks of 1 to "
                                f"{opts['max_chunk_symbols']} symbols: {call} in chunks equals "
                                f"{call} of the whole" + (", flushed tail included" if flush
-                                                         else ""),
-                               statistic=0.0, limit=0.0, seed=seed)
+                                                         else "") + note,
+                               statistic=0.0, limit=0.0, seed=seed, details=extra)
             reason = problem(minimal) or "failed once, passed when rerun"
         except DeviceFailed as stop:
             return self._device_error(name, stop.error, seed, stop.example, k)
@@ -222,10 +237,11 @@ class StreamingOracle(Oracle):
             return self._device_error(name, exc, seed, minimal, k)
         sizes, bits = minimal
         ce = f"chunks={list(map(int, sizes))} bits={bits_text(bits, k)}"
-        return Verdict(name, "fail", f"{call} in chunks is not {call} of the whole: {reason}",
-                       counterexample=ce, seed=seed,
-                       details={"call": call, "chunks": [int(s) for s in sizes],
-                                "bits": "".join(map(str, bits.tolist()))})
+        extra["counterexample"] = {"verdict": name, "bits": "".join(map(str, bits.tolist())),
+                                   "chunks": [int(c) for c in sizes]}
+        return Verdict(name, "fail",
+                       f"{call} in chunks is not {call} of the whole: {reason}{note}",
+                       counterexample=ce, seed=seed, details=extra)
 
     def _device_error(self, name, exc: AdapterError, seed, example, k) -> Verdict:
         ce = None

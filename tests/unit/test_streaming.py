@@ -58,7 +58,8 @@ def test_shaper_that_drops_filter_state_fails_with_the_smallest_split():
     # two chunks of one symbol each is the smallest split; the boundary is at 1 x 8 samples
     assert "chunks of 1 + 1 symbols differ from the whole from sample 8" in m.reason
     assert "the boundary after symbol 1, at sample 8" in m.reason
-    assert m.details["chunks"] == [1, 1]
+    assert m.details["counterexample"] == {"verdict": "streaming.modulate", "bits": "0000",
+                                           "chunks": [1, 1]}
 
 
 def test_pi2_bpsk_that_restarts_its_position_counter_fails():
