@@ -99,7 +99,8 @@ class KeptSet:
 def _scheme_of(spec) -> dict:
     s = spec.scheme
     return {"modulation": s.modulation, "convention": s.convention,
-            "samples_per_symbol": int(s.samples_per_symbol), "pulse": s.pulse.describe()}
+            "samples_per_symbol": int(s.samples_per_symbol),
+            "pulse": "rectangular" if s.pulse.is_rectangular else s.pulse.describe()}
 
 
 def _bad(path: Path, what: str) -> ConfigError:
@@ -225,15 +226,15 @@ def export_kept(report: str | Path, out: str | Path) -> tuple[list[Path], list[s
     folder = report / KEPT_FOLDER
     if not report.is_dir():
         raise ConfigError(f"--from-report {report}: no such folder; expected the --report "
-                          f"folder of a modemverify check run", key="--from-report")
+                          f"folder of a modemverify check run")
     if not folder.is_dir():
         raise ConfigError(f"--from-report {report}: has no {KEPT_FOLDER}/ folder; expected "
                           f"the --report folder of a modemverify check run that kept "
-                          f"counterexamples", key="--from-report")
+                          f"counterexamples")
     files = sorted(folder.glob("*.json"))
     if not files:
         raise ConfigError(f"--from-report {report}: {folder} holds no .json file of kept "
-                          f"counterexamples", key="--from-report")
+                          f"counterexamples")
     written, notes = [], []
     for path in files:
         kept = read_kept(path)

@@ -166,3 +166,20 @@ def test_a_kept_file_for_another_scheme_is_not_replayed(tmp_path, capsys):
     out = capsys.readouterr().out
     assert "are for qpsk (3gpp), not pi/2-bpsk (3gpp): not replayed" in out
     assert "kept counterexample" not in out.split("not replayed")[1]
+
+
+def test_a_shaped_device_exports_its_counterexamples_at_one_sample_per_symbol(tmp_path,
+                                                                              capsys):
+    report, out = tmp_path / "report", tmp_path / "vectors"
+    f = tmp_path / "rrc.yaml"
+    f.write_text(f"name: tern-rrc\nadapter: python\n"
+                 f"target: {DEVICES / 'streaming.py'}:StreamingRrcQpsk\n"
+                 f"params: {{defect: drop_state}}\n"
+                 f"scheme: {{modulation: qpsk, convention: 3gpp, samples_per_symbol: 8, "
+                 f"streaming: true, pulse: {{shape: rrc, rolloff: 0.35, span: 10}}}}\n")
+    assert main(["check", str(f), "--report", str(report), "--only", "streaming"]) == 1
+    assert main(["vectors", "export", "--from-report", str(report), "--out", str(out)]) == 0
+    vs = read_vector_set(out / "tern-rrc-counterexamples.yaml")
+    assert vs.samples_per_symbol == 1 and "is not applied" in vs.source
+    # chunks [1, 1] of label 00: TS 38.211 5.1.3 gives (1 + j) / sqrt 2 twice
+    np.testing.assert_allclose(vs.segments[0].samples, [(1 + 1j) / np.sqrt(2)] * 2, atol=1e-7)

@@ -16,6 +16,7 @@ import pytest
 from conftest import make_bench
 from devices.streaming import DitheredQpsk, StreamingDqpsk, StreamingPi2Bpsk, StreamingRrcQpsk
 
+from modemverify.adapters.python import PythonAdapter
 from modemverify.config import parse_device
 from modemverify.oracles import ORACLES
 from modemverify.options import validate_options
@@ -150,3 +151,26 @@ def test_isolated_device_offers_reset_and_flush():
     assert got["streaming.modulate"].outcome == "fail"
     assert "chunks of 1 + 1 symbols differ from the whole from sample 8" in \
         got["streaming.modulate"].reason
+
+
+def test_selftest_operator_drops_only_the_state():
+    # the self-test's mutant, with its defect turned off, passes every check: its only defect
+    # is the memory it clears at each call
+    from modemverify.schemes.conventions import get_convention
+    from modemverify.selftest.operators import OPERATORS
+
+    op = next(o for o in OPERATORS if o.name == "chunk_state_dropped")
+    dev = op.build(get_convention("3gpp", "16qam"), None)
+    dev.drop_state = False
+    res = check(parse_device({"name": "stream", "adapter": "python", "target": "x.py:X",
+                              "scheme": {"modulation": "16qam", "convention": "3gpp",
+                                         **op.scheme}, "checks": {"ber": False}}),
+                seed=2, adapter=PythonAdapter(dev))
+    assert [v.name for v in res.verdicts if v.outcome not in ("pass", "skipped")] == []
+    dev.drop_state = True
+    res = check(parse_device({"name": "stream", "adapter": "python", "target": "x.py:X",
+                              "scheme": {"modulation": "16qam", "convention": "3gpp",
+                                         **op.scheme}}),
+                seed=2, adapter=PythonAdapter(dev), only=["streaming"])
+    got = {v.name: v for v in res.verdicts}
+    assert got[op.verdict].outcome == "fail" and "boundary" in got[op.verdict].reason
