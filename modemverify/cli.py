@@ -345,8 +345,12 @@ def cmd_checks(args) -> int:
     for name, oracle in ORACLES.items():
         print(f"\n{name}: {oracle.summary}")
         names = oracle.verdict_names(example)
+        example.scheme.streaming = True  # the names of a device with state, where they differ
+        stateful = [n for n in oracle.verdict_names(example) if n not in names]
+        example.scheme.streaming = False
         print(f"  verdicts: {', '.join(names)}"
-              + (" (one per Eb/N0 point; these for 16qam's defaults)" if name == "ber" else ""))
+              + (" (one per Eb/N0 point; these for 16qam's defaults)" if name == "ber" else "")
+              + (f"; with scheme.streaming: {', '.join(stateful)}" if stateful else ""))
         for key, opt in oracle.options.items():
             default = "auto" if opt.default is None else opt.default
             print(f"  {key} (default {default!r}): {opt.help}")

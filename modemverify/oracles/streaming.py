@@ -190,7 +190,7 @@ class StreamingOracle(Oracle):
             wave = bench.reference.modulate(bits)
             bounds = np.cumsum(sizes)[:-1] * sps
             dev.reset()
-            whole = dev.demodulate(wave, burst=False, check_length=False)
+            whole = dev.demodulate(wave.copy(), burst=False, check_length=False)
             dev.reset()
             parts = [dev.demodulate(p, burst=False, check_length=False)
                      for p in np.split(wave, bounds)]
