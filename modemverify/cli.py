@@ -385,8 +385,8 @@ def cmd_vectors_export(args) -> int:
         return EXIT_OK
     if args.all == bool(args.modulation and args.convention) or (
             not args.all and bool(args.modulation) != bool(args.convention)):
-        raise ConfigError("give either --all, both --modulation and --convention, or "
-                          "--from-report DIR", key="vectors export")
+        raise ConfigError("give either --all or both --modulation and --convention (or "
+                          "--from-report DIR)", key="vectors export")
     if args.all:
         sets = SHIPPED_SETS
     else:
