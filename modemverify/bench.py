@@ -57,6 +57,10 @@ class Bench:
     warn: Callable[[str], None] = field(default=lambda text: None)
     #: seconds a BER check should take at most; it warns when it will likely take longer
     time_budget_s: float | None = None
+    #: counterexamples an earlier run kept with its report, by verdict name
+    #: ({name: [records.CounterexampleRecord, ...]}): the checks that find concrete failing
+    #: inputs try these first (vectors.kept)
+    kept: dict = field(default_factory=dict)
 
     @property
     def k(self) -> int:
@@ -294,7 +298,7 @@ def open_bench(spec: DeviceSpec, adapter=None) -> Bench:
 
     device = GuardedDevice.opening(opener, scheme.bits_per_symbol, scheme.samples_per_symbol,
                                    name=spec.name, tail_samples=scheme.tail_samples,
-                                   input_tail=scheme.pulse.tail)
+                                   input_tail=scheme.pulse.tail, streaming=scheme.streaming)
     try:
         conv = scheme.reference
         return Bench(spec=spec, device=device, convention=conv,

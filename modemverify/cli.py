@@ -33,6 +33,7 @@ from .session import (
     compare_and_report,
     run_and_report,
 )
+from .vectors.kept import export_kept
 from .vectors.recording import SHIPPED_SETS, export_golden
 
 __all__ = [
@@ -161,6 +162,9 @@ def build_parser() -> argparse.ArgumentParser:
     e.add_argument("--convention", help="e.g. 3gpp, ieee802.11 (with --modulation)")
     e.add_argument("--all", action="store_true",
                    help="every set shipped in the repository's vectors/ folder")
+    e.add_argument("--from-report", metavar="DIR",
+                   help="the failing inputs a check run kept in its --report folder "
+                        "(DIR/counterexamples/), with the claimed convention's samples")
     e.add_argument("--samples-per-symbol", type=int, default=1, metavar="N",
                    help="hold each point N samples (default 1: symbols)")
     e.add_argument("--segments", metavar="NAMES",
@@ -341,8 +345,12 @@ def cmd_checks(args) -> int:
     for name, oracle in ORACLES.items():
         print(f"\n{name}: {oracle.summary}")
         names = oracle.verdict_names(example)
+        example.scheme.streaming = True  # the names of a device with state, where they differ
+        stateful = [n for n in oracle.verdict_names(example) if n not in names]
+        example.scheme.streaming = False
         print(f"  verdicts: {', '.join(names)}"
-              + (" (one per Eb/N0 point; these for 16qam's defaults)" if name == "ber" else ""))
+              + (" (one per Eb/N0 point; these for 16qam's defaults)" if name == "ber" else "")
+              + (f"; with scheme.streaming: {', '.join(stateful)}" if stateful else ""))
         for key, opt in oracle.options.items():
             default = "auto" if opt.default is None else opt.default
             print(f"  {key} (default {default!r}): {opt.help}")
@@ -364,10 +372,21 @@ def cmd_identify(args) -> int:
 
 
 def cmd_vectors_export(args) -> int:
+    if args.from_report is not None:
+        if args.all or args.modulation or args.convention:
+            raise ConfigError("give --from-report alone, without --all, --modulation or "
+                              "--convention (the report's device files say the scheme)",
+                              key="vectors export")
+        paths, notes = export_kept(args.from_report, args.out)
+        for note in notes:
+            print(note)
+        for path in paths:
+            print(path)
+        return EXIT_OK
     if args.all == bool(args.modulation and args.convention) or (
             not args.all and bool(args.modulation) != bool(args.convention)):
-        raise ConfigError("give either --all or both --modulation and --convention",
-                          key="vectors export")
+        raise ConfigError("give either --all or both --modulation and --convention (or "
+                          "--from-report DIR)", key="vectors export")
     if args.all:
         sets = SHIPPED_SETS
     else:

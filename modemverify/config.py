@@ -98,6 +98,9 @@ SCHEME_OPTIONS: dict[str, Opt] = {
     "alignment": Opt("mapping", None, "which corrections may be applied to the device's "
                      "waveform: {delay, phase, frequency} (default: all with a pulse or more "
                      "than one sample per symbol, none otherwise)"),
+    "streaming": Opt("bool", False, "the device keeps state between calls (filter memory, a "
+                     "differential reference, a position counter): calls in chunks must equal "
+                     "one call on the whole (the streaming check)"),
 }
 
 PULSE_OPTIONS: dict[str, Opt] = {
@@ -221,4 +224,5 @@ def _parse_scheme(raw: Any, file: str | None) -> SchemeSpec:
     return SchemeSpec(modulation=opts["modulation"], convention=opts["convention"],
                       ring_ratio=ring, samples_per_symbol=sps,
                       llr_positive_bit=opts["llr_positive_bit"],
-                      pulse=pulse, tail_samples=tail, alignment=align)
+                      pulse=pulse, tail_samples=tail, alignment=align,
+                      streaming=opts["streaming"])

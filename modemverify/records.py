@@ -19,6 +19,7 @@ __all__ = [
     "MappingRecord", "EyeRecord", "EvmRecord", "BerPointRecord", "ImportanceGuardRecord",
     "MaskRecord",
     "SpectrumRecord", "CompareEvmRecord", "CompareSpectrumRecord", "SoftOutputRecord",
+    "CounterexampleRecord", "KeptRecord",
 ]
 
 
@@ -173,3 +174,24 @@ class SoftOutputRecord(TypedDict):
     empirical: list[float]
     #: on a partial sign failure: the share of agreeing signs per label bit
     per_bit_agreement: NotRequired[list[float]]
+
+
+class CounterexampleRecord(TypedDict):
+    """``details["counterexample"]`` of a failing ``roundtrip``, ``streaming.modulate`` or
+    ``streaming.demodulate``: the input it failed on, as the next run replays it (kept beside
+    the report, ``vectors.kept``)."""
+
+    #: the verdict that failed
+    verdict: str
+    #: the bits, one character 0/1 per bit, in the order they are fed
+    bits: str
+    #: streaming only: the split, in symbols per chunk
+    chunks: NotRequired[list[int]]
+
+
+class KeptRecord(TypedDict):
+    """``details["kept"]``: the kept counterexamples of an earlier run, tried first."""
+
+    tried: int
+    #: the positions (in the order kept) of those that still fail
+    failing: list[int]

@@ -198,7 +198,7 @@ def expected_names(spec: DeviceSpec, only: list[str] | None = None) -> list[str]
 def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
           only: list[str] | None = None, on_verdict=None, adapter=None,
           progress=None, execution=None, journal=None, warn=None,
-          oracles: dict | None = None) -> RunResult:
+          oracles: dict | None = None, kept: dict | None = None) -> RunResult:
     """Run every check that applies to ``device`` and return the verdicts.
 
     Parameters
@@ -227,6 +227,10 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
     oracles : dict, optional
         {check name: Oracle} replacing the built-in checks of those names (the self-test's
         deliberately weakened checks); by default :data:`~modemverify.oracles.ORACLES`.
+    kept : dict, optional
+        {verdict name: [CounterexampleRecord, ...]}: inputs an earlier run failed on, which
+        the checks that search for counterexamples try first (``vectors.kept``; the command
+        line reads them from the ``--report`` folder).
 
     Raises
     ------
@@ -265,6 +269,7 @@ def check(device: DeviceSpec | str | Path, *, seed: int = DEFAULT_SEED,
             bench.progress = progress
         bench.warn = warned
         bench.journal = journal
+        bench.kept = dict(kept or {})
     except AdapterError as exc:
         # every verdict the device file promises, as an error: the names do not change
         emit(not_judged(expected_names(spec, only), "error",

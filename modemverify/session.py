@@ -18,6 +18,7 @@ that forks) does not inherit the handler.
 
 from __future__ import annotations
 
+import json
 import os
 import signal
 import sys
@@ -33,9 +34,11 @@ from .execution import CAMPAIGN_FILE, CampaignFile, Execution
 from .report.console import render_header, render_summary, render_totals, render_verdict
 from .report.html import write_report
 from .report.junit import write_junit
+from .report.outputs import write_atomic
 from .report.progress import ProgressLine
 from .runner import RunResult, Subject, check, expected_names, not_judged
 from .spec import DeviceSpec
+from .vectors.kept import kept_of_results, kept_path, load_kept
 
 __all__ = [
     "EXIT_OK", "EXIT_FAIL", "EXIT_USAGE", "EXIT_INTERRUPTED", "SIGNALS", "Interrupts",
@@ -200,6 +203,7 @@ def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=No
                 guard.handle(signal_before)
             specs = [s if isinstance(s, DeviceSpec) else load_device(s) for s in specs]
             journal = _campaign(specs, seed, campaign, report, resume)
+            kept = {id(spec): load_kept(report, spec) for spec in specs}
             runs = {id(spec): Execution.of(spec, workers=workers, cluster=cluster,
                                            time_budget_s=time_budget_s) for spec in specs}
         bar = ProgressLine() if ProgressLine.wanted() else None
@@ -208,7 +212,7 @@ def run_and_report(specs, *, seed, only=None, junit=None, report=None, stream=No
             for spec in specs:
                 guard.check()
                 _run_one(spec, guard, seed, only, stream, bar, results, runs[id(spec)],
-                         journal)
+                         journal, kept[id(spec)], report)
                 if junit:
                     with guard.deferred():
                         write_junit(results, junit)
@@ -244,12 +248,20 @@ def _campaign(specs, seed, campaign, report, resume) -> CampaignFile | None:
 
 
 def _run_one(spec, guard: Interrupts, seed, only, stream, bar, results, execution=None,
-             journal=None) -> None:
+             journal=None, kept=None, report=None) -> None:
     """One device's block, printed as it is measured; its result (partial after an interrupt,
-    which then propagates) goes to ``results``."""
+    which then propagates) goes to ``results``. ``kept``: (KeptSet, note) of the report
+    folder, replayed first and written back with this run's counterexamples."""
     print(render_header(Subject.of(spec), seed), file=stream, flush=True)
     if execution is not None and not execution.in_process and "ber" in spec.checks:
         print(f"  BER blocks on {execution.describe()}", file=stream, flush=True)
+    kept_set, kept_note = kept if kept is not None else (None, None)
+    if kept_note:
+        print(f"  {kept_note}", file=stream, flush=True)
+    elif kept_set is not None and kept_set.entries:
+        print(f"  replaying {len(kept_set.entries)} kept counterexample"
+              f"{'s' if len(kept_set.entries) != 1 else ''} first ({kept_set.path})",
+              file=stream, flush=True)
     kept: list = []
     started = time.perf_counter()
 
@@ -267,7 +279,8 @@ def _run_one(spec, guard: Interrupts, seed, only, stream, bar, results, executio
 
     try:
         result = check(spec, seed=seed, only=only, on_verdict=on_verdict, progress=bar,
-                       execution=execution, journal=journal, warn=warn)
+                       execution=execution, journal=journal, warn=warn,
+                       kept=kept_set.by_verdict() if kept_set is not None else None)
     except Interrupted:
         with guard.deferred():
             result = _interrupted_result(Subject.of(spec), kept, expected_names(spec, only),
@@ -282,9 +295,20 @@ def _run_one(spec, guard: Interrupts, seed, only, stream, bar, results, executio
         raise
     with guard.deferred():
         results.append(result)
+        if report and kept_set is not None:
+            _keep(report, spec, kept_set, result, seed)
         if bar:
             bar.clear()
         print(render_summary(result), file=stream, flush=True)
+
+
+def _keep(report, spec, kept_set, result, seed) -> None:
+    """Write the device's kept counterexamples (earlier ones and this run's) beside the
+    report; nothing when there never was one."""
+    updated = kept_of_results(kept_set, result.verdicts, seed)
+    if updated.entries:
+        write_atomic(kept_path(report, spec.name),
+                     json.dumps(updated.to_json(), indent=1) + "\n")
 
 
 def _complete(results, specs, guard: Interrupts, seed, only) -> list[RunResult]:

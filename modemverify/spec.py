@@ -34,6 +34,10 @@ class SchemeSpec:
     #: corrections the harness may apply: {"delay": bool, "phase": bool, "frequency": bool}
     alignment: dict = field(default_factory=lambda: {"delay": False, "phase": False,
                                                      "frequency": False})
+    #: the device keeps state between calls (filter memory, a differential reference, a
+    #: position counter): every call of the checks is a burst from ``reset()``, and the
+    #: ``streaming`` check judges calls in chunks
+    streaming: bool = False
 
     def __post_init__(self):
         if self.pulse is None:

@@ -13,6 +13,7 @@ from .._door import lazy_door
 
 _EXPORTS = {
     "CAPABILITIES": "base",
+    "STATE_CALLS": "base",
     "ModemAdapter": "base",
     "summarise_bits": "base",
     "summarise_samples": "base",

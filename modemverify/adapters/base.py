@@ -12,6 +12,13 @@ An adapter wraps one device under test. It offers any of three calls:
     ``scheme.llr_positive_bit: 1``; ``noise_var`` is the complex noise variance per sample of
     ``samples`` (E|w|^2; N0 at one sample per symbol).
 
+A device that keeps state between calls (``scheme.streaming: true``) may also offer
+``reset()`` (back to the initial state) and ``flush() -> samples`` (the modulator's remaining
+filter tail, after which it is idle). With streaming, the guard makes every call a *burst*:
+``reset()`` first, and for ``modulate`` the ``flush()`` output appended, so that every check
+sees a call from the initial state, as it would from a device without state; the
+``streaming`` check calls with ``burst=False`` to send chunks.
+
 Adapters know nothing of oracles. The harness never calls an adapter directly: it calls a
 :class:`GuardedDevice`, which turns whatever the device does wrong (raises, returns the wrong
 type, shape or length, NaN) into an :class:`~modemverify.errors.AdapterError` that names the call
@@ -52,11 +59,13 @@ from ..options import Opt
 from ..spec import DeviceSpec
 
 __all__ = [
-    "CAPABILITIES", "ModemAdapter", "summarise_bits", "summarise_samples", "describe_raise",
-    "max_output", "OUTPUT_SLACK", "OUTPUT_SLACK_SYMBOLS", "GuardedDevice",
+    "CAPABILITIES", "STATE_CALLS", "ModemAdapter", "summarise_bits", "summarise_samples",
+    "describe_raise", "max_output", "OUTPUT_SLACK", "OUTPUT_SLACK_SYMBOLS", "GuardedDevice",
 ]
 
-CAPABILITIES = ("modulate", "demodulate", "demodulate_soft")
+CAPABILITIES = ("modulate", "demodulate", "demodulate_soft", "reset", "flush")
+#: the calls of a device with state (``scheme.streaming``); optional, never enough alone
+STATE_CALLS = ("reset", "flush")
 
 
 class ModemAdapter(ABC):
@@ -121,6 +130,14 @@ class ModemAdapter(ABC):
     def demodulate_soft(self, samples: np.ndarray, noise_var: float) -> np.ndarray:
         raise NotImplementedError
 
+    def reset(self) -> None:
+        """A device with state: back to the initial state (optional)."""
+        raise NotImplementedError
+
+    def flush(self) -> np.ndarray:
+        """A streaming modulator: the samples still in its filter, then idle (optional)."""
+        raise NotImplementedError
+
     def close(self) -> None:
         """Release the device (processes, libraries). Called once at the end of a run."""
 
@@ -169,6 +186,8 @@ def max_output(call: str, n_in: int, k: int, sps: int, tail: int = 0) -> int:
     """
     if call == "modulate":
         return OUTPUT_SLACK * (n_in // k + OUTPUT_SLACK_SYMBOLS) * sps + max(tail, 0)
+    if call in STATE_CALLS:  # a flushed filter tail
+        return OUTPUT_SLACK * OUTPUT_SLACK_SYMBOLS * sps + max(tail, 0)
     return OUTPUT_SLACK * (n_in // sps + OUTPUT_SLACK_SYMBOLS) * k
 
 
@@ -326,7 +345,8 @@ class GuardedDevice:
     """
 
     def __init__(self, adapter: ModemAdapter, bits_per_symbol: int, samples_per_symbol: int = 1,
-                 name: str = "device", *, tail_samples: int | None = 0, input_tail: int = 0):
+                 name: str = "device", *, tail_samples: int | None = 0, input_tail: int = 0,
+                 streaming: bool = False):
         self.adapter = adapter
         self.k = int(bits_per_symbol)
         self.sps = int(samples_per_symbol)
@@ -335,6 +355,9 @@ class GuardedDevice:
         #: samples beyond n x sps in the waveforms given to demodulate (the reference's tail)
         self.input_tail = int(input_tail)
         self.name = name
+        #: the device keeps state between calls: every call is a burst from reset() unless
+        #: called with ``burst=False``
+        self.streaming = bool(streaming)
         self.capabilities = frozenset(adapter.capabilities)
         self.replays_only = bool(getattr(adapter, "replays_only", False))
         self.device_time_s = 0.0
@@ -375,18 +398,50 @@ class GuardedDevice:
             self.device_time_s += time.perf_counter() - t0
             self.calls += 1
 
+    def reset(self) -> None:
+        """Call ``reset`` (a device with state: back to its initial state)."""
+        self._call("reset", None, self.adapter.reset)
+
+    def flush(self) -> np.ndarray:
+        """Call ``flush``; return the complex128 samples still in the modulator's filter."""
+        cap = max_output("flush", 0, self.k, self.sps,
+                         max(self.tail_samples or 0, self.input_tail))
+        out = _as_1d(self._call("flush", None, self.adapter.flush), "flush", None, "c",
+                     "complex samples", cap, "samples", lambda: "in a flushed tail")
+        out = np.ascontiguousarray(out, dtype=np.complex128)
+        if not np.all(np.isfinite(out)):
+            bad = int(np.argmin(np.isfinite(out)))
+            raise DeviceOutputError(f"returned a non-finite sample ({out[bad]}) at index {bad}",
+                                    call="flush")
+        return out
+
+    def _burst(self, burst: bool) -> bool:
+        """True when this call is a burst of a device with state: reset() first."""
+        if not (burst and self.streaming):
+            return False
+        if self.has("reset"):
+            self.reset()
+        return True
+
     def modulate(self, bits: np.ndarray, *, check_length: bool = True,
-                 check_finite: bool = True) -> np.ndarray:
-        """Call ``modulate``; return complex128 samples or raise AdapterError."""
+                 check_finite: bool = True, burst: bool = True) -> np.ndarray:
+        """Call ``modulate``; return complex128 samples or raise AdapterError.
+
+        For a device with state (``streaming``) the call is a burst unless ``burst=False``:
+        ``reset()`` first, and the ``flush()`` output appended (when the device has them).
+        """
         bits = np.ascontiguousarray(bits, dtype=np.uint8)
         summary = _Summary(summarise_bits, bits)
         n = bits.size // self.k
         cap = max_output("modulate", bits.size, self.k, self.sps,
                          max(self.tail_samples or 0, self.input_tail))
+        flush = self._burst(burst) and self.has("flush")
         out = _as_1d(self._call("modulate", summary, self.adapter.modulate, bits.copy()),
                      "modulate", summary, "c", "complex samples", cap, "samples",
                      lambda: f"for {n} symbols")
         out = np.ascontiguousarray(out, dtype=np.complex128)
+        if flush:
+            out = np.concatenate([out, self.flush()])
         if check_length:
             if self.tail_samples is not None:
                 expected = n * self.sps + self.tail_samples
@@ -409,12 +464,14 @@ class GuardedDevice:
         return out
 
     def demodulate(self, samples: np.ndarray, *, n_bits: int | None = None,
-                   check_length: bool = True) -> np.ndarray:
+                   check_length: bool = True, burst: bool = True) -> np.ndarray:
         """Call ``demodulate``; return uint8 bits or raise AdapterError.
 
         The device gets ``samples`` itself, not a copy: callers pass buffers they do not read
-        again (a device that scribbles on its input harms no one).
+        again (a device that scribbles on its input harms no one). A device with state is
+        reset first unless ``burst=False``.
         """
+        self._burst(burst)
         samples = np.ascontiguousarray(samples, dtype=np.complex128)
         summary = _Summary(summarise_samples, samples)
         expected = n_bits if n_bits is not None else self.bits_for(samples.size)
@@ -435,7 +492,9 @@ class GuardedDevice:
 
     def demodulate_soft(self, samples: np.ndarray, noise_var: float, *,
                         n_bits: int | None = None) -> np.ndarray:
-        """Call ``demodulate_soft``; return float64 LLRs or raise AdapterError."""
+        """Call ``demodulate_soft``; return float64 LLRs or raise AdapterError (a device with
+        state is reset first)."""
+        self._burst(True)
         samples = np.ascontiguousarray(samples, dtype=np.complex128)
         summary = _Summary(summarise_samples, samples, f", noise_var={noise_var:.4g}")
         expected = n_bits if n_bits is not None else self.bits_for(samples.size)

@@ -59,6 +59,7 @@ from ..errors import (
     DeviceTimeout,
 )
 from .base import (
+    STATE_CALLS,
     ModemAdapter,
     describe_raise,
     max_output,
@@ -457,6 +458,12 @@ class IsolatedAdapter(ModemAdapter):
                           lambda: summarise_samples(samples) + f", noise_var={noise_var:.4g}",
                           noise_var=float(noise_var))
 
+    def reset(self):
+        self._call("reset", np.zeros(0, np.uint8), lambda: "no input")
+
+    def flush(self):
+        return self._call("flush", np.zeros(0, np.uint8), lambda: "no input")
+
     def close(self) -> None:
         conn, proc = self._conn, self._proc
         # a worker still inside a call (the run was interrupted) cannot read "close": kill it
@@ -560,7 +567,11 @@ def _worker_main(conn, spec, capture_path: str, sys_path: list, cwd: str | None,
         _recv_array(conn, arr)
         try:
             fn = getattr(adapter, call)
-            out = fn(arr) if noise_var is None else fn(arr, noise_var)
+            if call in STATE_CALLS:  # no input; reset answers an empty array
+                out = fn()
+                out = np.zeros(0, np.complex128) if call == "reset" else out
+            else:
+                out = fn(arr) if noise_var is None else fn(arr, noise_var)
         except AdapterError as exc:
             reply = ("adapter_error", type(exc).__name__, exc.raw_message, exc.call,
                      exc.input_summary, exc.stderr)
@@ -594,7 +605,7 @@ def _send_result(conn, out, call: str, cap: int) -> None:
     sent)."""
     if isinstance(out, (list, tuple)) and len(out) > cap:
         # as in process, refused by its length: any dtype the guard accepts for the call
-        conn.send(("shape-only", "c16" if call == "modulate" else "f8", (len(out),)))
+        conn.send(("shape-only", "c16" if call in ("modulate", "flush") else "f8", (len(out),)))
         return
     try:
         arr = np.asarray(out)

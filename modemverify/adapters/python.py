@@ -2,7 +2,8 @@
 
 ``target`` names a callable as ``FILE.py:NAME`` (the file relative to the device file) or
 ``package.module:NAME``; it is called with ``params`` as keyword arguments and must return an
-object with ``modulate`` and/or ``demodulate`` (and optionally ``demodulate_soft``).
+object with ``modulate`` and/or ``demodulate`` (and optionally ``demodulate_soft``; a device
+with state, ``scheme.streaming: true``, also ``reset`` and ``flush``).
 """
 
 from __future__ import annotations
@@ -191,6 +192,15 @@ class PythonAdapter(ModemAdapter):
 
     def demodulate_soft(self, samples, noise_var):
         return self.device.demodulate_soft(self._encode(samples), noise_var)
+
+    def reset(self):
+        self.device.reset()
+
+    def flush(self):
+        out = self.device.flush()
+        if self.sample_format == "complex128":
+            return out
+        return decode_output(out, self.sample_format, self.full_scale)
 
     def _encode(self, samples):
         if self.sample_format == "complex128":

@@ -5,6 +5,10 @@ hypothesis searches bit sequences of varied length for a failure and shrinks it 
 one, which is what the verdict shows. A device that offers one side only is paired with the
 reference modem on the other side.
 
+Counterexamples an earlier run kept with its report (``Bench.kept``, see
+:mod:`modemverify.vectors.kept`) are tried before anything else; when one still fails it is
+the verdict's counterexample and no new search is made, and the reason says how they fared.
+
 Wrong bits are a ``fail``. A device that misbehaves on a call (it crashes, times out, breaks
 the protocol, returns the wrong length: an AdapterError) ends the check at once as an
 ``error`` quoting that error and the input: on a fixed vector the search does not start, and
@@ -15,11 +19,7 @@ hanging device hundreds of times, and a failure that does not recur would turn i
 
 from __future__ import annotations
 
-import random
-
 import numpy as np
-from hypothesis import HealthCheck, Phase, find, settings
-from hypothesis.errors import Flaky, NoSuchExample
 
 from ..bench import Bench
 from ..errors import AdapterError
@@ -29,24 +29,12 @@ from ..vectors.coverage import de_bruijn_labels
 from ..vectors.prbs import PRBS_PATTERNS, prbs
 from ..vectors.strategies import bit_sequences
 from ..verdict import Verdict
+from ..vectors.kept import bits_of
+from ._search import DeviceFailed, kept_text, replay_kept, smallest_failure
+from ._search import bits_text as _bits_text
 from .base import Oracle
 
 __all__ = ["RoundtripOracle", "ORACLE"]
-
-
-class _DeviceFailed(BaseException):
-    """Raised from hypothesis's condition to stop the search (hypothesis lets a BaseException
-    through at once, where it would shrink an Exception)."""
-
-    def __init__(self, error: AdapterError, bits):
-        super().__init__(str(error))
-        self.error, self.bits = error, bits
-
-
-def _bits_text(bits: np.ndarray, k: int) -> str:
-    s = "".join(map(str, bits.tolist()))
-    groups = " ".join(s[i:i + k] for i in range(0, len(s), k))
-    return f"[{groups}]"
 
 
 class RoundtripOracle(Oracle):
@@ -88,11 +76,23 @@ class RoundtripOracle(Oracle):
                             details={"sides": bench.sides(), "call": exc.call,
                                      "input": exc.input_summary, "stderr": exc.stderr})]
 
+        # the counterexamples an earlier run kept (vectors.kept) are tried first
+        try:
+            kept, still = replay_kept(bench.kept.get(self.name, ()),
+                                      lambda rec: bits_of(rec["bits"]), outcome)
+        except DeviceFailed as stop:
+            return device_failed("a kept counterexample",
+                                 f"bits={_bits_text(stop.example, k)}", stop.error)
+        extra = {"kept": {"tried": len(kept), "failing": still}} if kept else {}
+        note = kept_text(len(kept), still)
+
         fixed = [("de Bruijn labels", labels_to_bits(de_bruijn_labels(k, order=2), k))]
         stream = prbs(opts["prbs"], 8191 * k)
         for n in (1, 2, 3, 7, 64, 255, 1000, 8191):
             fixed.append((f"{opts['prbs']} x {n} symbols", stream[:n * k]))
         first_failure = None
+        if still:  # a kept counterexample fails again: no new search needed
+            fixed = [("a kept counterexample", min((kept[i] for i in still), key=len))]
         for label, bits in fixed:
             try:
                 problem = outcome(bits)
@@ -102,33 +102,14 @@ class RoundtripOracle(Oracle):
                 first_failure = (label, bits, problem)
                 break
 
-        failed: list = []  # the sequences that failed, for a failure that does not recur
-
-        def fails(b) -> bool:
-            try:
-                bad = outcome(b) is not None
-            except AdapterError as exc:
-                raise _DeviceFailed(exc, b) from None
-            if bad:
-                failed.append(b)
-            return bad
-
         # hypothesis: find the smallest failing sequence (always searched, so a failure that
         # only short or odd-length inputs trigger is found too)
-        hyp_settings = settings(max_examples=opts["max_examples"], database=None,
-                                deadline=None, derandomize=False,
-                                suppress_health_check=list(HealthCheck),
-                                phases=[Phase.generate, Phase.shrink])
-        minimal = None
         try:
-            minimal = find(bit_sequences(k, min_symbols=1, max_symbols=opts["max_symbols"]),
-                           fails, settings=hyp_settings, random=random.Random(seed))
-        except NoSuchExample:
-            pass
-        except Flaky:  # failed once, then not: report the sequence it failed on
-            minimal = failed[-1] if failed else None
-        except _DeviceFailed as stop:
-            bits = np.asarray(stop.bits, dtype=np.uint8)
+            minimal = None if still else smallest_failure(
+                bit_sequences(k, min_symbols=1, max_symbols=opts["max_symbols"]), outcome,
+                max_examples=opts["max_examples"], seed=seed)
+        except DeviceFailed as stop:
+            bits = np.asarray(stop.example, dtype=np.uint8)
             return device_failed("a generated sequence", f"bits={_bits_text(bits, k)}",
                                  stop.error)
         if minimal is None and first_failure is not None and first_failure[1].size <= 64 * k:
@@ -138,9 +119,9 @@ class RoundtripOracle(Oracle):
         if first_failure is None and minimal is None:
             return [Verdict(self.name, "pass",
                             f"{bench.sides()}: {n_tried} fixed bits and "
-                            f"{opts['max_examples']} generated sequences round-trip",
+                            f"{opts['max_examples']} generated sequences round-trip{note}",
                             statistic=0.0, limit=0.0, seed=seed,
-                            details={"sides": bench.sides()})]
+                            details={"sides": bench.sides(), **extra})]
         if minimal is not None:
             minimal = np.asarray(minimal, dtype=np.uint8)
             ce = f"bits={_bits_text(minimal, k)}"
@@ -150,13 +131,19 @@ class RoundtripOracle(Oracle):
                 return device_failed("the smallest failing sequence, rerun", ce, exc)
             ce = f"{ce}: {problem}"
             where = "generated" if first_failure is None else first_failure[0]
+            found = minimal
         else:
             label, bits, problem = first_failure
             ce = f"{label} ({bits.size} bits): {problem}"
-            where = label
+            where, found = label, None  # too long to keep
+        if found is not None:
+            extra["counterexample"] = {"verdict": self.name,
+                                       "bits": "".join(map(str, found.tolist()))}
         return [Verdict(self.name, "fail",
-                        f"{bench.sides()} does not return the bits sent (first seen on {where})",
-                        counterexample=ce, seed=seed, details={"sides": bench.sides()})]
+                        f"{bench.sides()} does not return the bits sent (first seen on "
+                        f"{where}){note}",
+                        counterexample=ce, seed=seed,
+                        details={"sides": bench.sides(), **extra})]
 
 
 ORACLE = RoundtripOracle()

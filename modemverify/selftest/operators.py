@@ -14,6 +14,7 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy.signal import lfilter
 from scipy.special import ndtr
 
 from ..dsp.formats import from_format, to_format
@@ -25,7 +26,8 @@ from ..schemes.theory import default_ebn0_points
 
 __all__ = [
     "DEFECT_CLASSES", "GATING_CLASSES", "WAVEFORM", "Operator", "OPERATORS", "TableModem",
-    "NoisyModem", "reference_device", "operators_for", "phase_for_loss", "rotated_ber",
+    "NoisyModem", "StreamingShaper", "reference_device", "operators_for", "phase_for_loss",
+    "rotated_ber",
 ]
 
 #: the defect classes, in report order: what each means
@@ -39,10 +41,12 @@ DEFECT_CLASSES = {
     "loss": "the demodulated BER is worse than theory plus the margin",
     "waveform": "the waveform is not the declared one (pulse, delay)",
     "fixed_point": "integer samples saturate at the rails",
+    "state": "a device with state loses it between calls (at chunk boundaries)",
 }
 #: classes whose defect must be detected in every seed, with the defect named, for the
 #: certificate to hold (deterministic properties; BER detection is a power, reported as such)
-GATING_CLASSES = ("mapping", "finite", "energy", "length", "soft", "waveform", "fixed_point")
+GATING_CLASSES = ("mapping", "finite", "energy", "length", "soft", "waveform", "fixed_point",
+                  "state")
 
 #: the pulse-shaped bench of the waveform operators (the demo's RRC ports use it too)
 WAVEFORM = {"samples_per_symbol": 8, "pulse": {"shape": "rrc", "rolloff": 0.35, "span": 10}}
@@ -120,6 +124,41 @@ class _RefModem:
 
     def demodulate_soft(self, samples, noise_var):
         return self.ref.demodulate_soft(samples, noise_var)
+
+
+class StreamingShaper(_RefModem):
+    """The reference modem's pulse as a streaming FIR: the filter memory (the last taps - 1
+    upsampled symbols) is carried from call to call, each call returns n x sps samples, and
+    ``flush()`` the samples still in the filter. ``drop_state`` clears the memory at every
+    call: each burst is still right, but a stream sent in chunks is not. It has no
+    demodulator (the checks pair it with the reference's)."""
+
+    demodulate = demodulate_soft = None
+
+    def __init__(self, ref: ReferenceModem, drop_state: bool = False):
+        super().__init__(ref)
+        self.taps = ref.pulse.taps.astype(np.complex128)
+        self.drop_state = drop_state
+        self.reset()
+
+    def reset(self):
+        self.zi = np.zeros(self.taps.size - 1, dtype=np.complex128)
+
+    def _filter(self, x):
+        y, self.zi = lfilter(self.taps, 1.0, x, zi=self.zi)
+        return y
+
+    def modulate(self, bits):
+        if self.drop_state:
+            self.reset()
+        up = np.zeros(len(bits) // self.ref.k * self.ref.sps, dtype=np.complex128)
+        up[::self.ref.sps] = self.ref.map_symbols(bits)
+        return self._filter(up)
+
+    def flush(self):
+        out = self._filter(np.zeros(self.taps.size - 1, dtype=np.complex128))
+        self.reset()
+        return out
 
 
 class NoisyModem(_RefModem):
@@ -287,6 +326,12 @@ def _natural(p, k, conv):
 
 _WIDE = dict(WAVEFORM, pulse=dict(WAVEFORM["pulse"], rolloff=0.6))
 
+
+def _streaming(conv, rng):
+    pulse = _pulse_of(WAVEFORM["pulse"], WAVEFORM["samples_per_symbol"])
+    return StreamingShaper(ReferenceModem(conv, WAVEFORM["samples_per_symbol"], pulse),
+                           drop_state=True)
+
 #: every operator, in report order
 OPERATORS: tuple[Operator, ...] = (
     Operator("iq_swapped", "mapping", "mapping", ("arms swapped",),
@@ -345,6 +390,9 @@ OPERATORS: tuple[Operator, ...] = (
              _out(None, WAVEFORM, int16_full_scale=0.25),
              scheme=dict(WAVEFORM, sample_format="int16", full_scale=0.25),
              description="Q15 samples with no headroom: full scale 0.25 saturates the peaks"),
+    Operator("chunk_state_dropped", "state", "streaming.modulate", ("boundary",), _streaming,
+             scheme=dict(WAVEFORM, streaming=True),
+             description="a streaming RRC shaper that clears its filter memory at every call"),
 )
 
 

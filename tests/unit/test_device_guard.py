@@ -337,7 +337,7 @@ def test_wrong_bits_that_do_not_recur_are_a_fail_naming_the_sequence(tmp_path):
                         checks={name: False for name in ("finite", "length", "energy",
                                                          "mapping", "gray", "evm", "ber",
                                                          "llr", "alignment", "spectrum",
-                                                         "fixed_point")}).verdicts
+                                                         "fixed_point", "streaming")}).verdicts
     assert v.name == "roundtrip" and v.outcome == "fail", (v.reason, v.counterexample)
     assert v.counterexample.startswith("bits=[") and "failed once, passed when rerun" in \
         v.counterexample
