@@ -251,7 +251,7 @@ def test_package_door_keeps_the_submodule_name_and_reexports_the_rest():
     assert module.prbs is prbs
     # the door lists each public name of its submodules once, bound to the same object
     subs = [importlib.import_module(f"modemverify.vectors.{s}")
-            for s in ("bits", "channels", "coverage", "prbs", "strategies")]
+            for s in ("biasing", "bits", "channels", "coverage", "prbs", "strategies")]
     public = [(m, name) for m in subs for name in m.__all__ if name != "prbs"]
     assert sorted(door.__all__) == sorted(name for _, name in public)
     for m, name in public:
