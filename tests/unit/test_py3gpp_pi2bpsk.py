@@ -2,7 +2,8 @@
 ``3gpp`` (3GPP TS 38.211 5.1.1); its plain BPSK claimed as pi/2-BPSK fails ``mapping`` naming the
 missing position-dependent rotation.
 
-py3gpp is not a dependency of the project: the test is skipped when it is not importable.
+py3gpp is in the ``test`` extra (so the suite and CI run this), not a dependency of the tool;
+the test is skipped only where it cannot be imported.
 """
 
 from __future__ import annotations
