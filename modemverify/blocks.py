@@ -26,11 +26,13 @@ resume; the default keeps nothing (:mod:`modemverify.execution.campaign` has the
 from __future__ import annotations
 
 import base64
+import math
 import zlib
 from dataclasses import dataclass
 from typing import Iterator
 
 import numpy as np
+from scipy.linalg import solve_banded
 
 from .bench import Bench
 from .errors import AdapterError
@@ -43,7 +45,7 @@ from .vectors.channels import Awgn, channel_from_config
 __all__ = [
     "BlockJob", "BlockResult", "block_seed", "block_schedule", "run_block", "Engine",
     "InProcess", "Unavailable", "Journal", "bench_state", "apply_bench_state", "pack_counts",
-    "unpack_counts",
+    "unpack_counts", "importance_delay",
 ]
 
 
@@ -121,6 +123,7 @@ class BlockResult:
 
 _BUFFER = "blocks.buffer"
 _MIXTURE = "blocks.mixture"
+_GRAM = "blocks.gram"
 
 
 def pack_counts(counts: np.ndarray) -> str:
@@ -167,20 +170,109 @@ def run_block(bench: Bench, job: BlockJob) -> BlockResult:
     return BlockResult(job.index, job.bits, errors)
 
 
+def importance_delay(bench: Bench) -> tuple[int, str]:
+    """The whole-sample delay of the device's symbols against the reference's, and why
+    importance sampling cannot bias this device's waveform ("" when it can).
+
+    At one sample per symbol the delay is 0. A waveform's noise is biased along each symbol's
+    pulse, at the device's own timing, so the measured alignment may only move it by whole
+    samples (no fractional delay, no frequency offset).
+    """
+    applied = bench.alignment() if bench.sps > 1 else None
+    if applied is None:
+        return 0, ""
+    c = applied.correction
+    d = float(c.delay_samples)
+    if abs(d - round(d)) > 0.05:
+        return 0, (f"the device's symbols are {d:.2f} samples late, a fractional delay, and "
+                   f"importance sampling biases the noise along each symbol's pulse at whole-"
+                   f"sample positions")
+    if abs(c.freq_offset) > 1e-9:  # under 0.01 degree of drift over a million samples
+        return 0, (f"the device's waveform has a frequency offset of {c.freq_offset:.3g} "
+                   f"cycles per sample, and importance sampling biases the noise along each "
+                   f"symbol's pulse at a fixed phase")
+    return int(round(d)), ""
+
+
+def _window(x: np.ndarray, start: int, length: int) -> np.ndarray:
+    """``x[start : start + length]``, with zeros where that runs outside ``x``."""
+    out = np.zeros(length, dtype=np.complex128)
+    lo, hi = max(start, 0), min(start + length, x.size)
+    if hi > lo:
+        out[lo - start:hi - start] = x[lo:hi]
+    return out
+
+
+def _gram_bands(pulse) -> np.ndarray:
+    """The pulse's autocorrelation at whole-symbol lags after the matched filter, as the bands
+    of a symmetric banded matrix (``scipy.linalg.solve_banded``'s layout): entry ``(i, j)`` is
+    the matched-filter output at symbol ``i`` for a unit symbol at ``j``."""
+    half = max(1, -(-pulse.tail // pulse.sps))  # symbols a pulse reaches beyond its own
+    n = 2 * half + 1
+    probe = np.zeros(n, dtype=np.complex128)
+    probe[half] = 1.0
+    r = pulse.matched_filter(pulse.shape_symbols(probe), n)  # r[half + k]: lag k
+    bands = np.zeros((n, 1), dtype=np.complex128)
+    bands[:, 0] = r  # row half + k holds lag k = i - j
+    return bands
+
+
+def _along_pulses(pulse, bands: np.ndarray, change: np.ndarray) -> np.ndarray:
+    """The waveform whose matched-filter projections are ``change`` exactly: ``change`` in the
+    dual basis of the symbols' pulses (their Gram matrix inverted), then shaped. For an rrc
+    pulse whose truncated taps leak a little into the neighbouring symbols this keeps each
+    symbol's biased noise its own: the change meant for one symbol does not reach another."""
+    half = (bands.shape[0] - 1) // 2
+    n = change.size
+    if half == 0 or n == 1:
+        coef = change / bands[0, 0].real
+    else:
+        ab = np.repeat(bands, n, axis=1)
+        coef = solve_banded((half, half), ab, change, check_finite=False)
+    return pulse.shape_symbols(coef)
+
+
 def _importance_block(bench: Bench, job: BlockJob, rng, bits, tx, awgn: Awgn, buf):
-    """A block with the noise drawn from the biasing mixture of the claimed constellation, at
-    one sample per symbol (the BER check refuses importance sampling elsewhere)."""
+    """A block with the noise drawn from the biasing mixture of the claimed constellation.
+
+    At one sample per symbol the noise of each sample is drawn from the mixture. For a pulse
+    (rrc, rectangular: a matched-filter pair, so the symbols' pulses are orthonormal) the
+    white noise of the waveform is drawn first; its matched-filter projection on each symbol's
+    pulse, at the device's timing (:func:`importance_delay`), is that symbol's true noise,
+    which the mixture changes; the change is added along the symbol's pulse. The weights
+    follow from the projections as at one sample per symbol (exactly so for orthonormal
+    pulses; for truncated rrc taps the change is put in the pulses' dual basis, so that each
+    symbol's projection changes by its own component only, :func:`_along_pulses`).
+    """
     k = bench.k
     mixture = bench.cache.get(_MIXTURE)
     if mixture is None:
         mixture = bench.cache[_MIXTURE] = NoiseMixture(bench.convention.points,
                                                        bench.convention.rule)
     labels = bits_to_labels(bits, k)
-    if tx.size != labels.size:
-        raise AdapterError(f"importance sampling needs one sample per symbol; the modulator "
-                           f"gave {tx.size} samples for {labels.size} symbols", call="modulate")
-    drawn = mixture.draw(labels, awgn.noise_variance(tx), rng)
-    np.add(tx, drawn.noise, out=buf)
+    n0 = awgn.noise_variance(tx)
+    if bench.sps == 1:
+        if tx.size != labels.size:
+            raise AdapterError(f"importance sampling needs one sample per symbol; the "
+                               f"modulator gave {tx.size} samples for {labels.size} symbols",
+                               call="modulate")
+        drawn = mixture.draw(labels, n0, rng)
+        np.add(tx, drawn.noise, out=buf)
+    else:
+        pulse = bench.reference.pulse
+        delay, why = importance_delay(bench)
+        if why:
+            raise AdapterError(f"importance sampling cannot bias this waveform: {why}")
+        white = rng.standard_normal(2 * tx.size).view(np.complex128) * math.sqrt(n0 / 2)
+        length = pulse.output_length(labels.size)
+        z = pulse.matched_filter(_window(white, delay, length), labels.size)
+        drawn = mixture.draw(labels, n0, rng, base=z)
+        bands = bench.cache.get(_GRAM)
+        if bands is None:
+            bands = bench.cache[_GRAM] = _gram_bands(pulse)
+        change = _window(_along_pulses(pulse, bands, drawn.noise - z), -delay, tx.size)
+        np.add(tx, white, out=buf)
+        buf += change
     repeatable = None
     if job.index == 0:
         # the weights account for the harness's noise only: a demodulator that draws noise of

@@ -41,7 +41,15 @@ from typing import NamedTuple
 import numpy as np
 
 from ..bench import Bench
-from ..blocks import BlockJob, InProcess, Journal, block_schedule, pack_counts, unpack_counts
+from ..blocks import (
+    BlockJob,
+    InProcess,
+    Journal,
+    block_schedule,
+    importance_delay,
+    pack_counts,
+    unpack_counts,
+)
 from ..errors import ConfigError
 from ..options import Opt
 from ..records import BerPointRecord, ImportanceGuardRecord
@@ -391,6 +399,14 @@ class BerOracle(Oracle):
             return Verdict.from_json(saved["verdict"])
         mod = bench.convention.modulation
         k = bench.k
+        _, why = importance_delay(bench)
+        if why:
+            v = Verdict(name, "inconclusive",
+                        f"importance sampling is not valid for this device: {why}; every point "
+                        f"of this check is inconclusive (use method: plain)", seed=seed,
+                        details={})
+            journal.decided(bench.spec.name, name, v)
+            return v
         g = run_guard(engine, self._job_maker(seed, opts), name, mod, opts["guard_ber"],
                       block_sizes(k, opts["guard_ber"], opts), importance_block_sizes(k, opts),
                       int(opts["max_bits"]))
@@ -420,8 +436,8 @@ class BerOracle(Oracle):
         if guard.outcome != "pass":
             why = guard.details.get("why") or guard.reason
             return Verdict(name, "inconclusive",
-                           f"not measured: importance sampling is not valid for this device "
-                           f"({self.guard_name} did not pass: {why}); use method: plain",
+                           f"not measured: {self.guard_name} did not pass ({why}); use "
+                           f"method: plain",
                            statistic=None, limit=p1, seed=seed)
         max_bits = int(opts["max_bits"])
         sizes = importance_block_sizes(bench.k, opts)
@@ -497,9 +513,10 @@ def _importance_applies(spec, *, file, key) -> None:
     why = None
     if mod not in THEORY_MODULATIONS:
         why = f"it needs a theory curve, and {mod} has none"
-    elif spec.scheme.samples_per_symbol != 1:
-        why = (f"it is built for one sample per symbol, and the scheme has "
-               f"samples_per_symbol={spec.scheme.samples_per_symbol} (use method: plain)")
+    elif spec.scheme.samples_per_symbol != 1 and not spec.scheme.pulse.matched_pair:
+        why = (f"at more than one sample per symbol it needs a pulse whose symbols are "
+               f"orthonormal after the matched filter (rrc, rectangular), and a "
+               f"{spec.scheme.pulse.shape} pulse is not (use method: plain)")
     elif conventions_for(mod)[0].rule.differential:
         why = (f"a differential detector ({mod}) decides on two symbols' noise, so the "
                f"per-symbol weights are not valid (use method: plain)")

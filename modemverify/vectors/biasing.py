@@ -134,16 +134,23 @@ class NoiseMixture:
         self.half_distance = np.array([np.abs(self.shifts[i, :c]).min()
                                        for i, c in enumerate(self.counts)])
 
-    def draw(self, labels: np.ndarray, n0: float, rng: np.random.Generator) -> BiasedNoise:
+    def draw(self, labels: np.ndarray, n0: float, rng: np.random.Generator,
+             base: np.ndarray | None = None) -> BiasedNoise:
         """Noise for symbols of ``labels`` at noise density ``n0`` (complex variance).
 
         Draws, in this order: one uniform per symbol (its component), then ``2 n`` standard
-        normals (interleaved I, Q).
+        normals (interleaved I, Q). ``base``: the true noise of each symbol, already drawn
+        (complex Gaussian of variance ``n0``, independent per symbol: the matched-filter
+        projections of a waveform's white noise); then no normals are drawn and the result's
+        ``noise`` is ``base`` changed by each symbol's component.
         """
         labels = np.asarray(labels, dtype=np.int64)
         n = labels.size
         u = rng.random(n)
-        w = rng.standard_normal(2 * n).view(np.complex128) * math.sqrt(n0 / 2)
+        if base is None:
+            w = rng.standard_normal(2 * n).view(np.complex128) * math.sqrt(n0 / 2)
+        else:
+            w = np.array(base, dtype=np.complex128)
         kind = np.full(n, KIND_SHIFTED, dtype=np.int8)
         kind[u < DEFENSIVE + SCALED] = KIND_SCALED
         kind[u < DEFENSIVE] = KIND_TRUE
