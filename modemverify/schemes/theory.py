@@ -22,6 +22,8 @@ Notation: ``g = Eb/N0`` (linear), ``k = log2 M``, ``gs = k g`` (Es/N0), ``Q(x) =
   BPSK ``Ps = Pb``; QPSK ``Ps = 2q - q**2`` with ``q = Q(sqrt(2 g))``.
 * DBPSK (differentially coherent detection): ``Pb = Ps = exp(-g) / 2``.
 * pi/2-BPSK: BPSK (the turn on odd positions is known to the receiver; AWGN is circular).
+* OQPSK: Gray QPSK (the half-symbol delay of the Q arm does not change the matched filter's
+  output noise on either arm; common practice).
 * DQPSK and pi/4-DQPSK, Gray, differential detection (the pi/4 offset of the phase changes
   does not change the phase difference's error): ``Pb = Q1(a, b) - I0(a b) exp(-(a^2+b^2)/2)/2``,
   ``a = sqrt(2 g (1 - 1/sqrt2))``, ``b = sqrt(2 g (1 + 1/sqrt2))``, Q1 the Marcum Q function
@@ -74,7 +76,7 @@ __all__ = [
 #: Names accepted by :func:`ber`, :func:`ser` and :func:`ebn0_for_ber`.
 THEORY_MODULATIONS: tuple[str, ...] = ("bpsk", "pi/2-bpsk", "qpsk", "dbpsk", "dqpsk",
                                        "pi/4-dqpsk", "8psk", "16qam", "64qam", "256qam",
-                                       "1024qam")
+                                       "1024qam", "oqpsk")
 
 _QAM_ORDERS = {"16qam": 16, "64qam": 64, "256qam": 256, "1024qam": 1024}
 
@@ -589,7 +591,7 @@ def ber(modulation: str, ebn0_db):
     ['7.8650e-02', '2.3883e-03']
     """
     mod = _modulation(modulation)
-    if mod in ("bpsk", "pi/2-bpsk", "qpsk"):
+    if mod in ("bpsk", "pi/2-bpsk", "qpsk", "oqpsk"):
         g, scalar = _ebn0_linear(ebn0_db)
         return _out(q_function(np.sqrt(2.0 * g)), scalar)
     if mod in ("dqpsk", "pi/4-dqpsk"):
@@ -617,7 +619,7 @@ def ser(modulation: str, ebn0_db):
         return ber(mod, ebn0_db)
     if mod in ("dqpsk", "pi/4-dqpsk"):
         return dpsk_ser(4, ebn0_db)
-    if mod == "qpsk":
+    if mod in ("qpsk", "oqpsk"):
         g, scalar = _ebn0_linear(ebn0_db)
         q = q_function(np.sqrt(2.0 * g))
         return _out(2.0 * q - q * q, scalar)

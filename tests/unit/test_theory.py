@@ -362,7 +362,7 @@ def test_bad_orders_and_labels():
 def test_public_names():
     assert set(theory.__all__) >= {"THEORY_MODULATIONS", "ber", "ser", "ebn0_for_ber"}
     assert THEORY_MODULATIONS == ("bpsk", "pi/2-bpsk", "qpsk", "dbpsk", "dqpsk", "pi/4-dqpsk",
-                                  "8psk", "16qam", "64qam", "256qam", "1024qam")
+                                  "8psk", "16qam", "64qam", "256qam", "1024qam", "oqpsk")
 
 
 # ---------------------------------------------------------------------------------------------
