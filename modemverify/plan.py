@@ -68,7 +68,8 @@ def plan(spec: DeviceSpec, *, workers: int = 1, adapter=None) -> Plan:
     points = BER.points(spec, opts)
     risk = BER.risk(opts, len(points))
     k = spec.scheme.bits_per_symbol
-    plans = [plan_point(mod, x, opts, risk, k) for x in points]
+    plans = [plan_point(mod, x, opts, risk, k, ring_ratio=spec.scheme.ring_ratio)
+             for x in points]
     bench = open_bench(spec, adapter)
     try:
         rate, probed = _probe(bench, opts, points[0], plans[0])

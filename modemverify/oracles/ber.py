@@ -142,7 +142,8 @@ class BerOracle(Oracle):
     def points(spec, opts) -> list[float]:
         """The Eb/N0 points of a device file: ``ebn0_db``, or the defaults for the modulation."""
         return [float(x) for x in (opts["ebn0_db"] or
-                                   default_ebn0_points(spec.scheme.modulation))]
+                                   default_ebn0_points(spec.scheme.modulation,
+                                                       ring_ratio=spec.scheme.ring_ratio))]
 
     def point_name(self, ebn0: float) -> str:
         return f"{self.name}.ebn0={ebn0:g}dB"
@@ -164,7 +165,7 @@ class BerOracle(Oracle):
         for x in opts["ebn0_db"]:
             for at, what in ((x, "theory BER"), (x - opts["margin_db"], "the limit")):
                 with np.errstate(over="ignore"):
-                    p = float(theory_ber(mod, at))
+                    p = float(theory_ber(mod, at, ring_ratio=spec.scheme.ring_ratio))
                 if not 1e-300 < p <= 0.25:
                     raise ConfigError(
                         f"ebn0_db={x:g}: {what} for {mod} at {at:g} dB is {p:.3g}, which no bit "
@@ -192,8 +193,8 @@ class BerOracle(Oracle):
         risk = self.risk(opts, len(points))
         impair = channel_from_config(opts["impairments"], bits_per_symbol=bench.k,
                                      samples_per_symbol=bench.sps)
-        plans = [plan_point(bench.convention.modulation, x, opts, risk, bench.k)
-                 for x in points]
+        plans = [plan_point(bench.convention.modulation, x, opts, risk, bench.k,
+                            ring_ratio=bench.convention.ring_ratio) for x in points]
         for plan in plans:
             if plan.warning:
                 bench.warn(f"warning: {self.point_name(plan.ebn0_db)}: {plan.warning}")
@@ -221,8 +222,9 @@ class BerOracle(Oracle):
             bench.warn(f"resumed: {name} was decided before the interrupt; its verdict is "
                        f"taken from the campaign file")
             return Verdict.from_json(saved["verdict"])
-        p0 = float(theory_ber(mod, ebn0))
-        p1 = float(theory_ber(mod, ebn0 - opts["margin_db"]))
+        ring = bench.convention.ring_ratio
+        p0 = float(theory_ber(mod, ebn0, ring_ratio=ring))
+        p1 = float(theory_ber(mod, ebn0 - opts["margin_db"], ring_ratio=ring))
         max_bits = int(opts["max_bits"])
         if not 0 < p0 < p1 < 0.5 or p1 * max_bits < 1:
             return Verdict(name, "skipped",
@@ -300,7 +302,7 @@ class BerOracle(Oracle):
         else:
             r = clopper_pearson(errors, bits_sent, conf)
         interval = (float(r.low), float(r.high))
-        loss = implementation_loss_db(mod, ebn0, ber, interval)
+        loss = implementation_loss_db(mod, ebn0, ber, interval, ring_ratio=ring)
         details: BerPointRecord = {
             "ebn0_db": ebn0, "theory_ber": p0, "limit_ber": p1, "margin_db": opts["margin_db"],
             "bits": bits_sent, "errors": errors, "decided_after_bits": used_bits,
@@ -406,10 +408,12 @@ def computed_bits(bits: float, sizes: BlockSizes, max_bits: int) -> int:
     return end
 
 
-def plan_point(modulation: str, ebn0: float, opts, risk: float, k: int = 1) -> PointPlan:
-    """The expected cost of one point (no device needed); see :class:`PointPlan`."""
-    p0 = float(theory_ber(modulation, ebn0))
-    p1 = float(theory_ber(modulation, ebn0 - opts["margin_db"]))
+def plan_point(modulation: str, ebn0: float, opts, risk: float, k: int = 1, *,
+               ring_ratio=None) -> PointPlan:
+    """The expected cost of one point (no device needed; ``ring_ratio``: APSK's); see
+    :class:`PointPlan`."""
+    p0 = float(theory_ber(modulation, ebn0, ring_ratio=ring_ratio))
+    p1 = float(theory_ber(modulation, ebn0 - opts["margin_db"], ring_ratio=ring_ratio))
     max_bits = int(opts["max_bits"])
     if not 0 < p0 < p1 < 0.5:
         return PointPlan(ebn0, p0, p1, math.nan, math.nan, 0, max_bits, "")
