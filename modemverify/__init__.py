@@ -16,6 +16,7 @@ from ._version import __version__
 _EXPORTS = {
     # running checks
     "check": "runner", "check_object": "runner", "RunResult": "runner", "Subject": "runner",
+    "expected_names": "runner", "DEFAULT_SEED": "runner",
     "identify": "identify", "IdentifyResult": "identify", "compare": "compare",
     "Verdict": "verdict",
     # device files

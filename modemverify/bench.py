@@ -22,6 +22,7 @@ from .schemes.conventions import Convention
 from .schemes.geometry import rotational_symmetry_deg
 from .schemes.labels import labels_to_bits
 from .schemes.reference import ReferenceModem
+from .schemes.rules import SymbolRule, arm_delay_samples
 from .spec import DeviceSpec
 from .vectors.coverage import de_bruijn_labels
 from .vectors.prbs import prbs
@@ -155,6 +156,21 @@ class Bench:
         if "scale" not in self.cache:
             self.cache["scale"] = _measure_scale(self)
         return self.cache["scale"]
+
+    def read_as(self, rule: SymbolRule) -> "Bench":
+        """This device judged as if its scheme sent the table under ``rule`` at waveform level:
+        this bench when ``rule`` has the claimed rule's arm delay, else a bench (cached) whose
+        reference delays the Q arm as ``rule`` says, with its own alignment and probe. The
+        symbol-level part of a rule is undone on the symbols (``undo_rule``), not here."""
+        if arm_delay_samples(rule, self.sps) == arm_delay_samples(self.convention.rule, self.sps):
+            return self
+        key = ("read_as", arm_delay_samples(rule, self.sps))
+        if key not in self.cache:
+            conv = replace(self.convention, rule=rule)
+            self.cache[key] = replace(
+                self, convention=conv, cache={}, verdicts={},
+                reference=ReferenceModem(conv, self.sps, self.spec.scheme.pulse))
+        return self.cache[key]
 
     def sides(self) -> str:
         tx = "device" if self.device.has("modulate") else "reference"

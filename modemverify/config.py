@@ -206,6 +206,12 @@ def _parse_scheme(raw: Any, file: str | None) -> SchemeSpec:
         raise ConfigError(f"convention={opts['convention']!r}: {exc.raw_message}", file=file,
                           key="scheme.convention") from None
     sps = opts["samples_per_symbol"]
+    rule = get_convention(opts["convention"], opts["modulation"], ring).rule
+    if rule.q_delay and (sps < 2 or (rule.q_delay * sps) % 1):
+        raise ConfigError(f"samples_per_symbol={sps}: {opts['modulation']} delays the Q arm by "
+                          f"{rule.q_delay:g} symbol, a property of the waveform: expected an "
+                          f"even number of samples per symbol, 2 or more", file=file,
+                          key="scheme.samples_per_symbol")
     popts = validate_options(PULSE_OPTIONS, opts["pulse"], file=file, key="scheme.pulse")
     try:
         pulse = PulseShape(popts["shape"], sps, rolloff=popts["rolloff"], span=popts["span"],

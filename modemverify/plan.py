@@ -74,14 +74,17 @@ def plan(spec: DeviceSpec, *, workers: int = 1, adapter=None) -> Plan:
     points = BER.points(spec, opts)
     risk = BER.risk(opts, len(points))
     k = spec.scheme.bits_per_symbol
-    plans = [plan_point(mod, x, opts, risk, k) for x in points]
+    plans = [plan_point(mod, x, opts, risk, k, ring_ratio=spec.scheme.ring_ratio)
+             for x in points]
     guard = None
     bench = open_bench(spec, adapter)
     try:
         rate, probed = _probe(bench, opts, points[0], plans[0], opts["method"])
         if opts["method"] == "importance":  # the guard's plain sampling, at its own rate
-            x = float(ebn0_for_ber(mod, opts["guard_ber"]))
-            plain_rate, _ = _probe(bench, opts, x, plan_point(mod, x, opts, risk, k), "plain")
+            ring = spec.scheme.ring_ratio
+            x = float(ebn0_for_ber(mod, opts["guard_ber"], ring_ratio=ring))
+            plain_rate, _ = _probe(bench, opts, x, plan_point(mod, x, opts, risk, k,
+                                                              ring_ratio=ring), "plain")
             bits = min(GUARD_ERRORS / opts["guard_ber"], GUARD_MAX_BITS)
             guard = (x, opts["guard_ber"], bits, bits / (plain_rate * workers))
     finally:

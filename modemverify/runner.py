@@ -104,6 +104,21 @@ class RunResult:
         """No verdict gates the run, and the run was not interrupted."""
         return not self.gating and not self.interrupted
 
+    def verdict(self, name: str) -> Verdict:
+        """The verdict named ``name`` (as JUnit and ``expected_names`` name it).
+
+        >>> from modemverify.config import parse_device
+        >>> spec = parse_device({"name": "ref", "adapter": "reference", "checks": {"ber": False},
+        ...                      "scheme": {"modulation": "qpsk", "convention": "3gpp"}})
+        >>> check(spec).verdict("mapping").outcome
+        'pass'
+        """
+        for v in self.verdicts:
+            if v.name == name:
+                return v
+        raise KeyError(f"no verdict named {name!r} in this run; its verdicts: "
+                       f"{', '.join(v.name for v in self.verdicts) or 'none'}")
+
     def counts(self) -> dict[str, int]:
         """{outcome: number of verdicts}, in the order of :data:`~modemverify.verdict.OUTCOMES`,
         outcomes with no verdict left out."""

@@ -32,7 +32,7 @@ class ReferenceAdapter(ModemAdapter):
     def from_spec(cls, spec) -> "ReferenceAdapter":
         conv = spec.params.get("convention", spec.scheme.convention)
         try:
-            convention = get_convention(conv, spec.scheme.modulation)
+            convention = get_convention(conv, spec.scheme.modulation, spec.scheme.ring_ratio)
         except ConfigError as exc:
             raise ConfigError(exc.raw_message, file=spec.file, key="params.convention") from None
         return cls(ReferenceModem(convention, spec.scheme.samples_per_symbol, spec.scheme.pulse))

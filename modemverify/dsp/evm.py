@@ -42,7 +42,7 @@ DEFAULT_EVM_LIMITS: dict[str, float] = {"qpsk": 17.5, "16qam": 12.5, "64qam": 8.
 #: Modulations :func:`evm_limit` knows; those without a 3GPP limit map to None.
 EVM_MODULATIONS: tuple[str, ...] = ("bpsk", "qpsk", "8psk", "16qam", "64qam", "256qam",
                                     "1024qam", "pi/2-bpsk", "16apsk", "dbpsk", "dqpsk",
-                                    "pi/4-dqpsk")
+                                    "pi/4-dqpsk", "oqpsk", "32apsk")
 
 
 @dataclass(frozen=True)

@@ -166,13 +166,15 @@ def _jobs(make: Callable[..., BlockJob], point: str, method: str, sizes, max_bit
 
 
 def run_guard(engine: Engine, make: Callable[..., BlockJob], name: str, modulation: str,
-              guard_ber: float, sizes_plain, sizes_weighted, budget: int) -> GuardResult:
+              guard_ber: float, ring_ratio, sizes_plain, sizes_weighted,
+              budget: int) -> GuardResult:
     """Estimate the BER at the guard point both ways and judge whether they agree.
 
-    ``make(point, index, offset, bits, method)`` builds a job at the guard's Eb/N0; the two
+    ``ring_ratio``: APSK's rings (None otherwise). ``make(point, index, offset, bits, method)``
+    builds a job at the guard's Eb/N0; the two
     estimates use their own streams (points ``<name>/plain`` and ``<name>/importance``).
     """
-    ebn0 = float(ebn0_for_ber(modulation, guard_ber))
+    ebn0 = float(ebn0_for_ber(modulation, guard_ber, ring_ratio=ring_ratio))
     budget = int(min(budget, GUARD_MAX_BITS))
     # plain sampling until GUARD_ERRORS errors
     bits = errors = 0

@@ -44,7 +44,9 @@ def measure_table(bench: Bench, rule: SymbolRule | None = None) -> MeasuredTable
     key = "table" if rule is None else ("table", rule)
     if key not in bench.cache:
         if bench.device.has("modulate"):
-            bench.cache[key] = _from_modulate(bench, rule or bench.convention.rule)
+            rule = rule or bench.convention.rule
+            # an arm delay is read on the waveform: the probe of a bench whose reference has it
+            bench.cache[key] = _from_modulate(bench.read_as(rule), rule)
         else:
             bench.cache[key] = _from_demodulate(bench)
     return bench.cache[key]

@@ -15,6 +15,7 @@ import numpy as np
 
 from ..bench import measure_alignment
 from ..options import Opt
+from ..schemes.rules import rule_family
 from ..verdict import Verdict
 from .base import Oracle
 
@@ -78,7 +79,7 @@ class AlignmentOracle(Oracle):
         if measured.correlation < opts["min_correlation"]:
             problems.append(f"the waveform correlates with the reference of the same bits only "
                             f"{measured.correlation:.3f} (at least {opts['min_correlation']:g} "
-                            f"expected): another pulse, sample rate or mapping")
+                            f"expected): " + _arm_delay(bench, opts["min_correlation"]))
         if problems:
             return [Verdict(self.name, "fail", "; ".join(problems) + f" ({text})",
                             statistic=measured.correlation, limit=opts["min_correlation"],
@@ -90,6 +91,21 @@ class AlignmentOracle(Oracle):
         return [Verdict(self.name, "pass", f"aligned and reported: {text}{left}",
                         statistic=measured.correlation, limit=opts["min_correlation"],
                         unit="correlation", seed=seed, details=details)]
+
+
+def _arm_delay(bench, least: float) -> str:
+    """Why the waveform may not be the reference's: a Q arm delayed otherwise than the claimed
+    scheme says, when the waveform read that way (``Bench.read_as``) lines up; else the
+    general causes."""
+    for rule, found in rule_family(bench.convention.rule):
+        other = bench.read_as(rule)
+        if other is bench:
+            continue
+        applied = other.alignment()
+        if applied is not None and applied.measured.correlation >= least:
+            return (f"{found} (read that way it correlates "
+                    f"{applied.measured.correlation:.3f})")
+    return "another pulse, sample rate or mapping"
 
 
 ORACLE = AlignmentOracle()

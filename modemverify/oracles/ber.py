@@ -164,7 +164,8 @@ class BerOracle(Oracle):
     def points(spec, opts) -> list[float]:
         """The Eb/N0 points of a device file: ``ebn0_db``, or the defaults for the modulation."""
         return [float(x) for x in (opts["ebn0_db"] or
-                                   default_ebn0_points(spec.scheme.modulation))]
+                                   default_ebn0_points(spec.scheme.modulation,
+                                                       ring_ratio=spec.scheme.ring_ratio))]
 
     def point_name(self, ebn0: float) -> str:
         return f"{self.name}.ebn0={ebn0:g}dB"
@@ -193,7 +194,7 @@ class BerOracle(Oracle):
         for x in opts["ebn0_db"]:
             for at, what in ((x, "theory BER"), (x - opts["margin_db"], "the limit")):
                 with np.errstate(over="ignore"):
-                    p = float(theory_ber(mod, at))
+                    p = float(theory_ber(mod, at, ring_ratio=spec.scheme.ring_ratio))
                 if not 1e-300 < p <= 0.25:
                     raise ConfigError(
                         f"ebn0_db={x:g}: {what} for {mod} at {at:g} dB is {p:.3g}, which no bit "
@@ -221,8 +222,8 @@ class BerOracle(Oracle):
         risk = self.risk(opts, len(points))
         impair = channel_from_config(opts["impairments"], bits_per_symbol=bench.k,
                                      samples_per_symbol=bench.sps)
-        plans = [plan_point(bench.convention.modulation, x, opts, risk, bench.k)
-                 for x in points]
+        plans = [plan_point(bench.convention.modulation, x, opts, risk, bench.k,
+                            ring_ratio=bench.convention.ring_ratio) for x in points]
         for plan in plans:
             if plan.warning:
                 bench.warn(f"warning: {self.point_name(plan.ebn0_db)}: {plan.warning}")
@@ -255,8 +256,9 @@ class BerOracle(Oracle):
             bench.warn(f"resumed: {name} was decided before the interrupt; its verdict is "
                        f"taken from the campaign file")
             return Verdict.from_json(saved["verdict"])
-        p0 = float(theory_ber(mod, ebn0))
-        p1 = float(theory_ber(mod, ebn0 - opts["margin_db"]))
+        ring = bench.convention.ring_ratio
+        p0 = float(theory_ber(mod, ebn0, ring_ratio=ring))
+        p1 = float(theory_ber(mod, ebn0 - opts["margin_db"], ring_ratio=ring))
         max_bits = int(opts["max_bits"])
         if guard is not None:
             return self._weighted_point(bench, opts, engine, journal, clock, seed, ebn0, risk,
@@ -356,7 +358,8 @@ class BerOracle(Oracle):
         ``trusted=False``: the estimate is not valid (``inconclusive`` says why)."""
         mod = bench.convention.modulation
         interval = (float(r.low), float(r.high))
-        loss = implementation_loss_db(mod, ebn0, ber, interval)
+        loss = implementation_loss_db(mod, ebn0, ber, interval,
+                                      ring_ratio=bench.convention.ring_ratio)
         details: BerPointRecord = {
             "ebn0_db": ebn0, "theory_ber": p0, "limit_ber": p1, "margin_db": opts["margin_db"],
             "loss_db": loss.loss_db, "loss_interval_db": [loss.low_db, loss.high_db],
@@ -408,6 +411,7 @@ class BerOracle(Oracle):
             journal.decided(bench.spec.name, name, v)
             return v
         g = run_guard(engine, self._job_maker(seed, opts), name, mod, opts["guard_ber"],
+                      bench.convention.ring_ratio,
                       block_sizes(k, opts["guard_ber"], opts), importance_block_sizes(k, opts),
                       int(opts["max_bits"]))
         details: ImportanceGuardRecord = dict(g._asdict())
@@ -431,8 +435,9 @@ class BerOracle(Oracle):
                         guard: Verdict, saved) -> Verdict:
         name = self.point_name(ebn0)
         mod = bench.convention.modulation
-        p0 = float(theory_ber(mod, ebn0))
-        p1 = float(theory_ber(mod, ebn0 - opts["margin_db"]))
+        ring = bench.convention.ring_ratio
+        p0 = float(theory_ber(mod, ebn0, ring_ratio=ring))
+        p1 = float(theory_ber(mod, ebn0 - opts["margin_db"], ring_ratio=ring))
         if guard.outcome != "pass":
             why = guard.details.get("why") or guard.reason
             return Verdict(name, "inconclusive",
@@ -520,6 +525,9 @@ def _importance_applies(spec, *, file, key) -> None:
     elif conventions_for(mod)[0].rule.differential:
         why = (f"a differential detector ({mod}) decides on two symbols' noise, so the "
                f"per-symbol weights are not valid (use method: plain)")
+    elif conventions_for(mod)[0].rule.q_delay:
+        why = (f"{mod} decides its Q arm half a symbol after its I arm, and the noise is "
+               f"biased at each symbol's own instant (use method: plain)")
     if why:
         raise ConfigError(f"method=importance: {why}", file=file, key=key)
 
@@ -575,10 +583,12 @@ def computed_bits(bits: float, sizes: BlockSizes, max_bits: int) -> int:
     return end
 
 
-def plan_point(modulation: str, ebn0: float, opts, risk: float, k: int = 1) -> PointPlan:
-    """The expected cost of one point (no device needed); see :class:`PointPlan`."""
-    p0 = float(theory_ber(modulation, ebn0))
-    p1 = float(theory_ber(modulation, ebn0 - opts["margin_db"]))
+def plan_point(modulation: str, ebn0: float, opts, risk: float, k: int = 1, *,
+               ring_ratio=None) -> PointPlan:
+    """The expected cost of one point (no device needed; ``ring_ratio``: APSK's); see
+    :class:`PointPlan`."""
+    p0 = float(theory_ber(modulation, ebn0, ring_ratio=ring_ratio))
+    p1 = float(theory_ber(modulation, ebn0 - opts["margin_db"], ring_ratio=ring_ratio))
     max_bits = int(opts["max_bits"])
     if not 0 < p0 < p1 < 0.5:
         return PointPlan(ebn0, p0, p1, math.nan, math.nan, 0, max_bits, "")

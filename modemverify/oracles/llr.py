@@ -120,7 +120,8 @@ class LlrOracle(Oracle):
         mod = bench.convention.modulation
         ebn0 = opts["ebn0_db"]
         if ebn0 is None:
-            ebn0 = (default_ebn0_points(mod, (1e-2,))[0] if mod in THEORY_MODULATIONS
+            ebn0 = (default_ebn0_points(mod, (1e-2,), ring_ratio=bench.convention.ring_ratio)[0]
+                    if mod in THEORY_MODULATIONS
                     else 10.0)
         n = opts["bits"] - opts["bits"] % (8 * k)
         bits = random_bits(rng, n)

@@ -121,8 +121,10 @@ def waterfall_plot(result, folder: Path, stem: str) -> list[Figure]:
     margin = records[0]["margin_db"]
     grid = np.linspace(x.min() - 2, x.max() + 1.5, 200)
     fig, ax = plt.subplots(figsize=(7, 4.8), dpi=100)
-    ax.semilogy(grid, theory_ber(mod, grid), "k-", lw=1.2, label=f"theory ({mod}, AWGN)")
-    ax.semilogy(grid, theory_ber(mod, grid - margin), "k--", lw=0.9,
+    ring = result.subject.scheme.ring_ratio
+    ax.semilogy(grid, theory_ber(mod, grid, ring_ratio=ring), "k-", lw=1.2,
+                label=f"theory ({mod}, AWGN)")
+    ax.semilogy(grid, theory_ber(mod, grid - margin, ring_ratio=ring), "k--", lw=0.9,
                 label=f"limit: theory {margin:g} dB worse")
     colours = {"pass": "tab:green", "fail": "tab:red", "inconclusive": "tab:orange",
                "error": "tab:purple"}

@@ -40,6 +40,7 @@ __all__ = [
 MODULATIONS: dict[str, int] = {
     "bpsk": 1, "qpsk": 2, "8psk": 3, "16qam": 4, "64qam": 6, "256qam": 8, "1024qam": 10,
     "pi/2-bpsk": 1, "16apsk": 4, "32apsk": 5, "dbpsk": 1, "dqpsk": 2, "pi/4-dqpsk": 2,
+    "oqpsk": 2,
 }
 
 #: the symbol rule each modulation sends its table under (see :mod:`.rules`); the table of a
@@ -49,6 +50,8 @@ _RULES: dict[str, SymbolRule] = {
     "dbpsk": SymbolRule(differential=True),
     "dqpsk": SymbolRule(differential=True),
     "pi/4-dqpsk": SymbolRule(differential=True),
+    # offset QPSK: the QPSK table, the Q arm of the waveform half a symbol late (common practice)
+    "oqpsk": SymbolRule(q_delay=0.5),
 }
 
 #: DVB-S2 ring ratios per code rate, ETSI EN 302 307-1: 16APSK gamma = R2/R1 (5.4.3, Table 9);

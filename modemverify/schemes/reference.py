@@ -13,7 +13,7 @@ import numpy as np
 from ..dsp.pulses import PulseShape
 from .conventions import Convention
 from .labels import labels_to_bits
-from .rules import apply_rule, undo_rule
+from .rules import align_arms, apply_rule, arm_delay_samples, delay_arm, undo_rule
 
 __all__ = ["ReferenceModem"]
 
@@ -76,10 +76,12 @@ class ReferenceModem:
 
     def modulate(self, bits: np.ndarray) -> np.ndarray:
         sym = self.map_symbols(bits)
-        return sym if self._identity else self.pulse.shape_symbols(sym)
+        if self._identity:
+            return sym
+        return delay_arm(self.pulse.shape_symbols(sym), self.rule, self.sps)
 
     def waveform_length(self, n_symbols: int) -> int:
-        return self.pulse.output_length(n_symbols)
+        return self.pulse.output_length(n_symbols) + arm_delay_samples(self.rule, self.sps)
 
     # -- receive ----------------------------------------------------------------------------
     def symbols(self, samples: np.ndarray, n_symbols: int | None = None) -> np.ndarray:
@@ -89,6 +91,7 @@ class ReferenceModem:
             n_symbols = max(samples.size - self.pulse.tail, 0) // self.sps
         if self._identity:
             return samples[:n_symbols]
+        samples = align_arms(samples, self.rule, self.sps)  # an offset scheme's Q arm
         if self.pulse.sampled_at_peaks:
             peaks = np.arange(n_symbols) * self.sps + int(self.pulse.delay)
             out = np.zeros(n_symbols, dtype=np.complex128)

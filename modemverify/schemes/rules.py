@@ -7,7 +7,12 @@ schemes send that point as it is; some do not:
   turned by ``turn_deg`` when ``i`` is odd (``turn_on="odd"``), counting from 0;
 - a **differential** rule (DBPSK, DQPSK, pi/4-DQPSK): the table gives the *phase change* a label
   sets, and symbol ``i`` is symbol ``i - 1`` times that change (the symbol before the first is
-  1, phase 0).
+  1, phase 0);
+- an **arm delay** (offset QPSK): the symbols are the table points, but the quadrature arm of
+  the shaped waveform is sent ``q_delay`` symbols after the in-phase arm (half a symbol, common
+  practice). This one is a property of the waveform, not of the symbol sequence:
+  :func:`delay_arm` applies it after the pulse shaping and :func:`align_arms` undoes it before
+  the matched filter, both in the reference modem alone.
 
 :func:`apply_rule` sends a sequence of table points under a rule; :func:`undo_rule` recovers the
 table points from symbols, so that everything judged on a table (mapping, gray, identify,
@@ -22,7 +27,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["PLAIN", "SymbolRule", "apply_rule", "rule_family", "undo_rule"]
+__all__ = ["PLAIN", "SymbolRule", "apply_rule", "rule_family", "undo_rule", "arm_delay_samples",
+           "delay_arm", "align_arms"]
 
 
 @dataclass(frozen=True)
@@ -31,17 +37,20 @@ class SymbolRule:
 
     ``turn_deg`` is the rotation applied at the positions ``turn_on`` (``"odd"`` or
     ``"even"``, positions counted from 0); ``differential`` says the table point is a phase
-    change applied to the previous symbol.
+    change applied to the previous symbol; ``q_delay`` is the delay of the quadrature arm of
+    the waveform, in symbols (0.5 for offset QPSK).
     """
 
     turn_deg: float = 0.0
     turn_on: str = "odd"
     differential: bool = False
+    q_delay: float = 0.0
 
     @property
     def plain(self) -> bool:
-        """True when the symbol is its table point (no memory, no position dependence)."""
-        return not self.differential and self.turn_deg % 360 == 0
+        """True when the waveform carries each table point as it is (no memory, no position
+        dependence, no arm delay)."""
+        return not self.differential and self.turn_deg % 360 == 0 and self.q_delay == 0
 
     def describe(self) -> str:
         if self.plain:
@@ -52,7 +61,13 @@ class SymbolRule:
                          f"{self.turn_on} positions")
         if self.differential:
             parts.append("the label sets the phase change from the previous symbol")
+        if self.q_delay:
+            parts.append(f"the Q arm is delayed by {_symbols(self.q_delay)} against the I arm")
         return "; ".join(parts)
+
+
+def _symbols(x: float) -> str:
+    return "half a symbol" if x == 0.5 else f"{x:g} symbols"
 
 
 #: the rule of a memoryless table
@@ -109,14 +124,49 @@ def undo_rule(symbols: np.ndarray, rule: SymbolRule, start: int = 0,
     return y
 
 
+def arm_delay_samples(rule: SymbolRule, samples_per_symbol: int) -> int:
+    """The Q arm's delay in samples (0 for every rule but an arm delay)."""
+    return int(round(rule.q_delay * samples_per_symbol))
+
+
+def delay_arm(waveform: np.ndarray, rule: SymbolRule, samples_per_symbol: int) -> np.ndarray:
+    """A shaped waveform with its Q arm sent ``rule.q_delay`` symbols late: the I arm is
+    followed by that many zero samples, the Q arm preceded by them (``d`` samples longer)."""
+    d = arm_delay_samples(rule, samples_per_symbol)
+    x = np.asarray(waveform, dtype=np.complex128)
+    if d == 0:
+        return x
+    out = np.zeros(x.size + d, dtype=np.complex128)
+    out.real[:x.size] = x.real
+    out.imag[d:] = x.imag
+    return out
+
+
+def align_arms(waveform: np.ndarray, rule: SymbolRule, samples_per_symbol: int) -> np.ndarray:
+    """The inverse of :func:`delay_arm`: the Q arm advanced by the rule's delay (``d`` samples
+    shorter), so that both arms peak at the symbol instants again."""
+    d = arm_delay_samples(rule, samples_per_symbol)
+    y = np.asarray(waveform, dtype=np.complex128)
+    if d == 0:
+        return y
+    n = max(y.size - d, 0)
+    return y.real[:n] + 1j * y.imag[d:d + n]
+
+
 def rule_family(rule: SymbolRule) -> list[tuple[SymbolRule, str]]:
     """Rules a device may follow instead of ``rule``, each with how it differs, in words.
 
     For a positional turn: the turn on the other positions, the other way, or not at all; for
-    a differential rule: absolute (not differential) mapping; for a plain table: a 90-degree
-    turn on odd or even positions, or a differential mapping.
+    a differential rule: absolute (not differential) mapping; for an arm delay: none; for a
+    plain table: a 90-degree turn on odd or even positions, a differential mapping, or the Q arm
+    delayed by half a symbol (an arm delay only shows on a waveform of an even number of samples
+    per symbol: :func:`arm_delay_samples` is 0 otherwise, and the reading is the plain one).
     """
     out: list[tuple[SymbolRule, str]] = []
+    if rule.q_delay:
+        out.append((SymbolRule(rule.turn_deg, rule.turn_on, rule.differential, 0.0),
+                    (f"the Q arm is not delayed: I and Q change at the same instants, where the "
+                     f"claimed scheme delays Q by {_symbols(rule.q_delay)} (offset)")))
     if rule.turn_deg % 360:
         other = "even" if rule.turn_on == "odd" else "odd"
         d = _deg(rule.turn_deg)
@@ -147,4 +197,7 @@ def rule_family(rule: SymbolRule) -> list[tuple[SymbolRule, str]]:
         out.append((SymbolRule(differential=True),
                     ("the label sets the phase change from the previous symbol (differential "
                      "encoding)")))
+        out.append((SymbolRule(q_delay=0.5),
+                    ("the Q arm is delayed by half a symbol against the I arm (offset "
+                     "modulation, as in OQPSK)")))
     return out

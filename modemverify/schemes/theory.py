@@ -22,6 +22,8 @@ Notation: ``g = Eb/N0`` (linear), ``k = log2 M``, ``gs = k g`` (Es/N0), ``Q(x) =
   BPSK ``Ps = Pb``; QPSK ``Ps = 2q - q**2`` with ``q = Q(sqrt(2 g))``.
 * DBPSK (differentially coherent detection): ``Pb = Ps = exp(-g) / 2``.
 * pi/2-BPSK: BPSK (the turn on odd positions is known to the receiver; AWGN is circular).
+* OQPSK: Gray QPSK (the half-symbol delay of the Q arm does not change the matched filter's
+  output noise on either arm; common practice).
 * DQPSK and pi/4-DQPSK, Gray, differential detection (the pi/4 offset of the phase changes
   does not change the phase difference's error): ``Pb = Q1(a, b) - I0(a b) exp(-(a^2+b^2)/2)/2``,
   ``a = sqrt(2 g (1 - 1/sqrt2))``, ``b = sqrt(2 g (1 + 1/sqrt2))``, Q1 the Marcum Q function
@@ -63,6 +65,7 @@ import numpy as np
 from scipy import integrate, optimize, special
 
 from modemverify.errors import ConfigError, UnknownNameError
+from modemverify.schemes.conventions import get_convention
 from modemverify.schemes.labels import gray_code, hamming
 
 __all__ = [
@@ -74,7 +77,7 @@ __all__ = [
 #: Names accepted by :func:`ber`, :func:`ser` and :func:`ebn0_for_ber`.
 THEORY_MODULATIONS: tuple[str, ...] = ("bpsk", "pi/2-bpsk", "qpsk", "dbpsk", "dqpsk",
                                        "pi/4-dqpsk", "8psk", "16qam", "64qam", "256qam",
-                                       "1024qam")
+                                       "1024qam", "oqpsk", "16apsk", "32apsk")
 
 _QAM_ORDERS = {"16qam": 16, "64qam": 64, "256qam": 256, "1024qam": 1024}
 
@@ -98,10 +101,14 @@ def q_function(x):
 # argument handling
 
 
-def _modulation(name) -> str:
+def _modulation(name, ring_ratio=None) -> str:
     key = name.strip().lower() if isinstance(name, str) else name
     if key not in THEORY_MODULATIONS:
         raise UnknownNameError("modulation with a theory curve", name, THEORY_MODULATIONS)
+    if ring_ratio is not None:  # refuses a ring ratio that does not fit, or a scheme without one
+        if key not in _APSK:
+            raise ConfigError(f"{key} has no ring ratio")
+        get_convention("dvb-s2", key, _ring_key(ring_ratio))
     return key
 
 
@@ -482,33 +489,33 @@ def _region_probabilities(points: np.ndarray, cells, sigma: float) -> np.ndarray
     m = len(points)
     out = np.zeros((m, m))
     xy = np.column_stack([points.real, points.imag])
-    for t_idx, poly in enumerate(cells):
-        a_all, b_all = poly, np.roll(poly, -1, axis=0)
-        for s_idx in range(m):
-            if s_idx == t_idx:
-                continue
-            a, b = a_all - xy[s_idx], b_all - xy[s_idx]
-            e = b - a
-            d = np.abs(a[:, 0] * e[:, 1] - a[:, 1] * e[:, 0]) / np.linalg.norm(e, axis=1)
-            # the signed positions of a and b along the edge, from the foot of the
-            # perpendicular, in units of d: tan(theta - phi)
-            unit = e / np.linalg.norm(e, axis=1)[:, None]
-            sa = np.sum(a * unit, axis=1) / np.maximum(d, 1e-300)
-            sb = np.sum(b * unit, axis=1) / np.maximum(d, 1e-300)
-            # orientation: counter-clockwise sweep seen from s is positive
-            cross = a[:, 0] * b[:, 1] - a[:, 1] * b[:, 0]
-            sign = np.sign(cross)
-            ok = (d > 1e-12) & (sign != 0)
-            lim = _CLIP_SIGMAS * sigma / np.maximum(d, 1e-300)
-            lo, hi = np.clip(np.minimum(sa, sb), -lim, lim), np.clip(np.maximum(sa, sb), -lim, lim)
-            half, mid = (hi - lo) / 2, (hi + lo) / 2
-            tt = mid[:, None] + half[:, None] * nodes[None, :]
-            z = (d[:, None] ** 2) * (1 + tt ** 2) / (2 * sigma ** 2)
-            f = np.exp(-z) / (1 + tt ** 2)
-            integral = half * (f @ weights)
-            # a ray crossing the cell meets the near edges sweeping one way and the far edges
-            # the other: the cell's probability is minus the signed sum (the sweeps cancel)
-            out[s_idx, t_idx] = -np.sum(np.where(ok, sign * integral, 0.0)) / (2 * np.pi)
+    for t_idx, poly in enumerate(cells):  # every sent point s at once, per cell t
+        e = np.roll(poly, -1, axis=0) - poly                      # (E, 2), the same for all s
+        length = np.linalg.norm(e, axis=1)
+        unit = e / length[:, None]
+        a = poly[None, :, :] - xy[:, None, :]                      # (m, E, 2)
+        b = a + e[None, :, :]
+        d = np.abs(a[..., 0] * e[:, 1] - a[..., 1] * e[:, 0]) / length
+        # the signed positions of a and b along the edge, from the foot of the
+        # perpendicular, in units of d: tan(theta - phi)
+        dd = np.maximum(d, 1e-300)
+        sa = np.sum(a * unit, axis=2) / dd
+        sb = np.sum(b * unit, axis=2) / dd
+        # orientation: counter-clockwise sweep seen from s is positive
+        sign = np.sign(a[..., 0] * b[..., 1] - a[..., 1] * b[..., 0])
+        ok = (d > 1e-12) & (sign != 0)
+        lim = _CLIP_SIGMAS * sigma / dd
+        lo = np.clip(np.minimum(sa, sb), -lim, lim)
+        hi = np.clip(np.maximum(sa, sb), -lim, lim)
+        half, mid = (hi - lo) / 2, (hi + lo) / 2
+        tt = mid[..., None] + half[..., None] * nodes                # (m, E, N)
+        z = (d[..., None] ** 2) * (1 + tt ** 2) / (2 * sigma ** 2)
+        f = np.exp(-z) / (1 + tt ** 2)
+        integral = half * (f @ weights)
+        # a ray crossing the cell meets the near edges sweeping one way and the far edges
+        # the other: the cell's probability is minus the signed sum (the sweeps cancel)
+        out[:, t_idx] = -np.sum(np.where(ok, sign * integral, 0.0), axis=1) / (2 * np.pi)
+    np.fill_diagonal(out, 0.0)
     return np.clip(out, 0.0, None)
 
 
@@ -524,6 +531,11 @@ def constellation_ber(points, ebn0_db, labels=None):
     Used for APSK, which has no closed form; it reproduces the closed forms of Gray QPSK,
     8PSK and 16QAM (tested).
     """
+    return _constellation_rates(points, ebn0_db, labels)[0]
+
+
+def _constellation_rates(points, ebn0_db, labels=None):
+    """(bit, symbol) error probabilities of :func:`constellation_ber`'s method."""
     pts = np.asarray(points, dtype=np.complex128)
     m = pts.size
     k = m.bit_length() - 1
@@ -534,19 +546,46 @@ def constellation_ber(points, ebn0_db, labels=None):
     h = hamming(lab[:, None], lab[None, :]).astype(float)
     g, scalar = _ebn0_linear(ebn0_db)
     flat = g.reshape(-1)
-    vals = np.empty(flat.size)
+    pb, ps = np.empty(flat.size), np.empty(flat.size)
     for i, gi in enumerate(flat):
         if gi == 0:
-            vals[i] = 0.5
+            pb[i], ps[i] = 0.5, 1.0 - 1.0 / m
             continue
         if np.isinf(gi):
-            vals[i] = 0.0
+            pb[i] = ps[i] = 0.0
             continue
         sigma = math.sqrt(1.0 / (2.0 * k * gi))  # Es = 1, N0 = 1/(k g), N0/2 per dimension
         cells = _voronoi_cells(pts, float(np.max(np.abs(pts))) + _CLIP_SIGMAS * sigma)
-        p = _region_probabilities(pts, cells, sigma)
-        vals[i] = float(np.sum(p * h) / (m * k))
-    return _out(vals.reshape(g.shape), scalar)
+        with np.errstate(over="ignore", invalid="ignore"):  # degenerate edges are masked
+            p = _region_probabilities(pts, cells, sigma)
+        pb[i] = float(np.sum(p * h) / (m * k))
+        ps[i] = float(np.sum(p) / m)
+    return _out(pb.reshape(g.shape), scalar), _out(ps.reshape(g.shape), scalar)
+
+
+#: the APSK curves: DVB-S2 tables (ETSI EN 302 307-1 5.4.3, 5.4.4) by exact integration over
+#: their decision regions, for the scheme's ring ratio
+_APSK = ("16apsk", "32apsk")
+
+
+@lru_cache(maxsize=4096)
+def _apsk_rates(mod: str, ring_ratio, ebn0_db: float) -> tuple[float, float]:
+    return _constellation_rates(get_convention("dvb-s2", mod, ring_ratio).points, ebn0_db)
+
+
+def _ring_key(ring_ratio):
+    """A ring ratio as a hashable tuple of floats (None stays None)."""
+    if ring_ratio is None:
+        return None
+    return tuple(float(x) for x in np.atleast_1d(np.asarray(ring_ratio, dtype=float)))
+
+
+def _apsk(mod: str, ring_ratio, ebn0_db, which: int):
+    _, scalar = _ebn0_linear(ebn0_db)  # the same argument check as every curve
+    arr = np.asarray(ebn0_db, dtype=float)
+    ring = _ring_key(ring_ratio)
+    vals = np.array([_apsk_rates(mod, ring, float(x))[which] for x in arr.reshape(-1)])
+    return _out(vals.reshape(arr.shape), scalar)
 
 
 def detection(modulation: str) -> str:
@@ -561,7 +600,7 @@ def detection(modulation: str) -> str:
             else "coherent detection")
 
 
-def ber(modulation: str, ebn0_db):
+def ber(modulation: str, ebn0_db, *, ring_ratio=None):
     """Theoretical bit error probability over AWGN.
 
     Parameters
@@ -570,6 +609,10 @@ def ber(modulation: str, ebn0_db):
         One of :data:`THEORY_MODULATIONS` (case-insensitive).
     ebn0_db : float or array_like
         Eb/N0 in dB; ``inf`` gives 0, ``-inf`` gives 0.5.
+    ring_ratio : float or tuple of float, optional
+        APSK only: the ring ratios of the scheme (default: those of the first DVB-S2 code rate,
+        as :func:`~modemverify.schemes.conventions.get_convention`); the curve is that of the
+        DVB-S2 table on those rings, by :func:`constellation_ber`.
 
     Returns
     -------
@@ -588,8 +631,10 @@ def ber(modulation: str, ebn0_db):
     >>> [f"{v:.4e}" for v in ber('bpsk', [0.0, 6.0])]
     ['7.8650e-02', '2.3883e-03']
     """
-    mod = _modulation(modulation)
-    if mod in ("bpsk", "pi/2-bpsk", "qpsk"):
+    mod = _modulation(modulation, ring_ratio)
+    if mod in _APSK:
+        return _apsk(mod, ring_ratio, ebn0_db, 0)
+    if mod in ("bpsk", "pi/2-bpsk", "qpsk", "oqpsk"):
         g, scalar = _ebn0_linear(ebn0_db)
         return _out(q_function(np.sqrt(2.0 * g)), scalar)
     if mod in ("dqpsk", "pi/4-dqpsk"):
@@ -602,8 +647,8 @@ def ber(modulation: str, ebn0_db):
     return qam_ber(_QAM_ORDERS[mod], ebn0_db)
 
 
-def ser(modulation: str, ebn0_db):
-    """Theoretical symbol error probability over AWGN.
+def ser(modulation: str, ebn0_db, *, ring_ratio=None):
+    """Theoretical symbol error probability over AWGN (``ring_ratio``: as :func:`ber`).
 
     For BPSK and DBPSK a symbol is a bit, so ``ser == ber``.
 
@@ -612,12 +657,14 @@ def ser(modulation: str, ebn0_db):
     >>> f"{ser('qpsk', 10.0):.6e}"
     '7.744201e-06'
     """
-    mod = _modulation(modulation)
+    mod = _modulation(modulation, ring_ratio)
+    if mod in _APSK:
+        return _apsk(mod, ring_ratio, ebn0_db, 1)
     if mod in ("bpsk", "pi/2-bpsk", "dbpsk"):
         return ber(mod, ebn0_db)
     if mod in ("dqpsk", "pi/4-dqpsk"):
         return dpsk_ser(4, ebn0_db)
-    if mod == "qpsk":
+    if mod in ("qpsk", "oqpsk"):
         g, scalar = _ebn0_linear(ebn0_db)
         q = q_function(np.sqrt(2.0 * g))
         return _out(2.0 * q - q * q, scalar)
@@ -632,14 +679,15 @@ _LOW_DB, _HIGH_DB, _LOWEST_DB, _HIGHEST_DB = -10.0, 20.0, -200.0, 200.0
 _TINY = 1e-320  # log() floor so that an underflowed BER still compares as "below target"
 
 
-def _inverse_scalar(mod: str, target: float) -> float:
+@lru_cache(maxsize=1024)
+def _inverse_scalar(mod: str, target: float, ring_ratio=None) -> float:
     if target == 0.0:
         return math.inf
     if target == 0.5:
         return -math.inf
 
     def f(x: float) -> float:
-        return math.log(max(float(ber(mod, x)), _TINY)) - math.log(target)
+        return math.log(max(float(ber(mod, x, ring_ratio=ring_ratio)), _TINY)) - math.log(target)
 
     lo, hi = _LOW_DB, _HIGH_DB
     while f(lo) < 0.0:
@@ -654,7 +702,7 @@ def _inverse_scalar(mod: str, target: float) -> float:
     return optimize.brentq(f, lo, hi, xtol=1e-12, rtol=4 * np.finfo(float).eps, maxiter=200)
 
 
-def ebn0_for_ber(modulation: str, ber_target):
+def ebn0_for_ber(modulation: str, ber_target, *, ring_ratio=None):
     """Eb/N0 in dB at which the theoretical BER equals ``ber_target`` (inverse of :func:`ber`).
 
     Solved with :func:`scipy.optimize.brentq` on ``log(ber(x)) - log(target)`` over a bracket
@@ -665,7 +713,9 @@ def ebn0_for_ber(modulation: str, ber_target):
     modulation : str
         One of :data:`THEORY_MODULATIONS`.
     ber_target : float or array_like
-        Target bit error probabilities in ``[0, 0.5]``. ``0`` gives ``inf``; ``0.5`` (and
+        Target bit error probabilities in ``[0, 0.5]``.
+    ring_ratio : optional
+        APSK only, as :func:`ber`. ``0`` gives ``inf``; ``0.5`` (and
         targets within rounding of it, above about 0.4999) gives ``-inf``.
 
     Returns
@@ -683,7 +733,8 @@ def ebn0_for_ber(modulation: str, ber_target):
     >>> round(ebn0_for_ber('qpsk', 1e-5), 3)
     9.588
     """
-    mod = _modulation(modulation)
+    mod = _modulation(modulation, ring_ratio)
+    ring = _ring_key(ring_ratio)
     try:
         t = np.asarray(ber_target, dtype=float)
     except (TypeError, ValueError):
@@ -696,7 +747,7 @@ def ebn0_for_ber(modulation: str, ber_target):
                           "(0.5 is the BER of guessing)")
     flat = t.reshape(-1)
     uniq, inverse = np.unique(flat, return_inverse=True)
-    vals = np.array([_inverse_scalar(mod, float(v)) for v in uniq], dtype=float)
+    vals = np.array([_inverse_scalar(mod, float(v), ring) for v in uniq], dtype=float)
     return _out(vals[inverse].reshape(t.shape), t.ndim == 0)
 
 
@@ -705,7 +756,8 @@ def ebn0_for_ber(modulation: str, ber_target):
 DEFAULT_BER_TARGETS: tuple[float, ...] = (1e-2, 1e-3, 1e-4)
 
 
-def default_ebn0_points(modulation: str, targets=DEFAULT_BER_TARGETS) -> list[float]:
+def default_ebn0_points(modulation: str, targets=DEFAULT_BER_TARGETS, *,
+                        ring_ratio=None) -> list[float]:
     """Eb/N0 in dB, rounded to a 0.1 dB grid, where the theoretical BER equals each target.
 
     The default measurement points of the ``ber`` check (and, with ``targets=(1e-2,)``, of the
@@ -716,4 +768,5 @@ def default_ebn0_points(modulation: str, targets=DEFAULT_BER_TARGETS) -> list[fl
     >>> default_ebn0_points('qpsk')
     [4.3, 6.8, 8.4]
     """
-    return [round(float(ebn0_for_ber(modulation, p)), 1) for p in targets]
+    return [round(float(ebn0_for_ber(modulation, p, ring_ratio=ring_ratio)), 1)
+            for p in targets]

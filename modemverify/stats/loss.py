@@ -65,14 +65,15 @@ class LossEstimate(NamedTuple):
 def _ber_value(value, name: str) -> float:
     return number_in(value, name, 0.0, 1.0, expected="a bit error rate in [0, 1]")
 
-def _loss_at(modulation: str, ebn0_db: float, p: float) -> float:
+def _loss_at(modulation: str, ebn0_db: float, p: float, ring_ratio=None) -> float:
     if p >= 0.5:
         return math.inf
-    return ebn0_db - float(ebn0_for_ber(modulation, p))  # p = 0 gives inf -> loss -inf
+    # p = 0 gives inf -> loss -inf
+    return ebn0_db - float(ebn0_for_ber(modulation, p, ring_ratio=ring_ratio))
 
 
 def implementation_loss_db(modulation: str, ebn0_db: float, ber_measured: float,
-                           interval=None) -> LossEstimate:
+                           interval=None, *, ring_ratio=None) -> LossEstimate:
     """Implementation loss in dB of a device measured at ``ebn0_db`` with BER ``ber_measured``.
 
     ``loss = ebn0_db - ebn0_for_ber(modulation, ber_measured)``; the interval ends are the losses
@@ -90,6 +91,8 @@ def implementation_loss_db(modulation: str, ebn0_db: float, ber_measured: float,
         Confidence interval for the BER (for instance from
         :func:`~modemverify.stats.clopper_pearson` or :func:`~modemverify.stats.block_interval`).
         Must contain ``ber_measured``.
+    ring_ratio : optional
+        APSK only: the scheme's ring ratios (see :func:`~modemverify.schemes.theory.ber`).
 
     Returns
     -------
@@ -115,7 +118,7 @@ def implementation_loss_db(modulation: str, ebn0_db: float, ber_measured: float,
     if not math.isfinite(x):
         raise ConfigError(f"ebn0_db={ebn0_db!r}: expected a finite Eb/N0 in dB")
     p = _ber_value(ber_measured, "ber_measured")
-    loss = _loss_at(modulation, x, p)
+    loss = _loss_at(modulation, x, p, ring_ratio)
     if interval is None:
         return LossEstimate(loss, math.nan, math.nan)
     if hasattr(interval, "low") and hasattr(interval, "high"):
@@ -130,11 +133,12 @@ def implementation_loss_db(modulation: str, ebn0_db: float, ber_measured: float,
     hi = _ber_value(hi_raw, "interval.high")
     if not lo <= p <= hi:
         raise ConfigError(f"interval=({lo!r}, {hi!r}): must contain ber_measured={p!r}")
-    return LossEstimate(loss, _loss_at(modulation, x, lo), _loss_at(modulation, x, hi))
+    return LossEstimate(loss, _loss_at(modulation, x, lo, ring_ratio),
+                        _loss_at(modulation, x, hi, ring_ratio))
 
 
 def loss_from_counts(modulation: str, ebn0_db: float, errors: int, bits: int,
-                     confidence: float = 0.95) -> LossEstimate:
+                     confidence: float = 0.95, *, ring_ratio=None) -> LossEstimate:
     """Implementation loss from raw counts, with the exact (Clopper-Pearson) BER interval.
 
     Assumes independent bit errors; for block counts with bursts, build the interval with
@@ -147,4 +151,4 @@ def loss_from_counts(modulation: str, ebn0_db: float, errors: int, bits: int,
     (-inf, -inf, -1.02)
     """
     ci = clopper_pearson(errors, bits, confidence)
-    return implementation_loss_db(modulation, ebn0_db, errors / bits, ci)
+    return implementation_loss_db(modulation, ebn0_db, errors / bits, ci, ring_ratio=ring_ratio)

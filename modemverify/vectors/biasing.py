@@ -122,6 +122,10 @@ class NoiseMixture:
             raise ConfigError("importance sampling needs a symbol-by-symbol detector; a "
                               "differential scheme decides on two symbols' noise",
                               key="scheme.modulation")
+        if rule.q_delay:
+            raise ConfigError("importance sampling biases each symbol's noise at its own "
+                              "instant; an offset arm is decided at another",
+                              key="scheme.modulation")
         self.points = np.asarray(points, dtype=np.complex128)
         self.rule = rule
         nb = gabriel_neighbours(self.points)

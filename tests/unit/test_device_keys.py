@@ -61,6 +61,10 @@ def scheme(**changes):
                   "pulse": {"shape": "rc", "rolloff": 0.25}},
           checks={"ber": {"method": "importance"}}), "checks.ber.method",
      "needs a pulse whose symbols are orthonormal after the matched filter"),
+    (base(scheme={"modulation": "oqpsk", "convention": "gray", "samples_per_symbol": 4,
+                  "pulse": {"shape": "rrc", "rolloff": 0.25}},
+          checks={"ber": {"method": "importance"}}), "checks.ber.method",
+     "decides its Q arm half a symbol after its I arm"),
     # numbers are finite (YAML .nan and .inf), the mechanism's own rule for every option
     (base(isolate=True, timeout_s=float("inf")), "timeout_s", "expected a finite number"),
     (base(checks={"ber": {"margin_db": float("nan")}}), "checks.ber.margin_db",
@@ -71,6 +75,11 @@ def scheme(**changes):
      "expected a whole number"),
     # sizes are bounded (a value that would exhaust memory is refused at load time)
     (scheme(samples_per_symbol=1e9), "scheme.samples_per_symbol", "expected a value <= 256"),
+    (base(scheme={"modulation": "oqpsk", "convention": "gray"}), "scheme.samples_per_symbol",
+     "oqpsk delays the Q arm by 0.5 symbol, a property of the waveform: expected an even "
+     "number of samples per symbol, 2 or more"),
+    (base(scheme={"modulation": "oqpsk", "convention": "gray", "samples_per_symbol": 3}),
+     "scheme.samples_per_symbol", "samples_per_symbol=3: oqpsk delays the Q arm"),
     (scheme(samples_per_symbol=8, pulse={"shape": "rrc", "rolloff": 0.3, "span": 1e8}),
      "scheme.pulse.span", "expected a value <= 256"),
     (base(isolate=True, timeout_s=1e9), "timeout_s", "expected a value <= 3600"),

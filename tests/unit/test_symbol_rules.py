@@ -292,9 +292,15 @@ def test_ring_ratio_keys_are_checked():
         make_spec("16apsk", "dvb-s2", ring_ratio=0.5)
 
 
-def test_ber_without_theory_says_so(bench_for):
-    [v] = run(bench_for(TableModem(apsk16_table(3.15), 4), "16apsk", "dvb-s2"), "ber")
-    assert v.outcome == "skipped" and "no theory curve for 16apsk" in v.reason
+def test_the_apsk_ber_check_holds_the_device_to_its_ring_ratios_curve(bench_for):
+    # a device on the rings of code rate 3/4 (gamma 2.85, ETSI EN 302 307-1 Table 9), claimed
+    # so: judged against the curve of those rings (schemes.theory.ber with the ring ratio)
+    from modemverify.schemes.theory import ber
+    bench = bench_for(TableModem(apsk16_table(2.85), 4), "16apsk", "dvb-s2", code_rate="3/4")
+    [v] = run(bench, "ber", ebn0_db=[9.0])
+    assert v.outcome == "pass", v.reason
+    assert v.details["theory_ber"] == ber("16apsk", 9.0, ring_ratio=2.85)
+    assert v.details["theory_ber"] != ber("16apsk", 9.0)
 
 
 def test_decreasing_ring_ratios_are_refused():
