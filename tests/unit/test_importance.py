@@ -383,3 +383,20 @@ def test_the_plan_gives_the_guard_and_a_first_block_per_point_not_the_plain_aver
     assert f"{x:g}dB" in text and "1.31e+05" in text
     # plain sampling at 1e-9 would warn that max_bits cannot decide it; importance does not
     assert "warning" not in text
+
+
+def test_an_apsk_device_is_judged_at_a_deep_point_on_its_own_rings():
+    # 16APSK at code rate 3/4 (EN 302 307-1 5.4.3, ring ratio 2.85): the translations aim at
+    # the ring neighbours' boundaries; theory by exact integration over the decision regions
+    ring = (2.85,)
+    x = round(float(ebn0_for_ber("16apsk", 1e-8, ring_ratio=ring)), 2)
+    spec = parse_device({"name": "apsk", "adapter": "reference",
+                         "scheme": {"modulation": "16apsk", "convention": "dvb-s2",
+                                    "code_rate": "3/4"},
+                         "checks": {"ber": {"method": "importance", "ebn0_db": [x],
+                                            "confidence": 0.999}}})
+    v = {r.name: r for r in check(spec, only=["ber"]).verdicts}
+    point = v[f"ber.ebn0={x:g}dB"]
+    assert v["ber.importance_guard"].outcome == "pass" and point.outcome == "pass", point.reason
+    lo, hi = point.interval
+    assert lo <= float(theory_ber("16apsk", x, ring_ratio=ring)) <= hi
