@@ -467,10 +467,12 @@ class BerOracle(Oracle):
         r = weighted_interval(t, conf)
         plain_bits = t.plain_bits_for_same_width(bench.k)
         speedup = plain_bits / run.bits if plain_bits == plain_bits and run.bits else math.nan
-        how = (f"importance sampling: {run.bits:.3g} bits in {run.blocks} device calls, "
-               f"effective sample size {t.ess:.3g}, largest weight share "
-               f"{100 * t.max_share:.2g} %, {run.looks} looks; plain sampling would need "
-               f"{plain_bits:.3g} bits for this interval, {speedup:.3g} times more")
+        calls = f"{run.blocks} device call{'s' if run.blocks != 1 else ''}"
+        looks = f"{run.looks} look{'s' if run.looks != 1 else ''}"
+        how = (f"importance sampling: {run.bits:.3g} bits in {calls}, effective sample size "
+               f"{t.ess:.3g}, largest weight share {100 * t.max_share:.2g} %, {looks}; plain "
+               f"sampling would need {plain_bits:.3g} bits for an interval this narrow, "
+               f"{speedup:.3g} times more")
         inconclusive = run.why or (f"budget of {max_bits:.3g} bits spent before a decision "
                                    f"(raise max_bits, or widen margin_db)")
         return self._verdict(bench, opts, seed, ebn0, p0, p1, run.outcome, t.mean, r, conf, {
