@@ -216,7 +216,7 @@ def test_a_correct_device_passes_a_deep_point_and_the_estimate_holds_theory(tmp_
     d = point.details
     assert d["method"] == "importance" and d["ess"] >= 100 and d["speedup"] > 1e4
     assert d["device_calls"] == d["blocks"] >= 1
-    for words in ("importance sampling", "device calls", "effective sample size",
+    for words in ("importance sampling", "device call", "effective sample size",
                   "plain sampling would need"):
         assert words in point.reason
     assert assert_records(v) == 2  # the guard's record and the point's
